@@ -1,0 +1,18 @@
+"""Shared helpers for the tests (importable as ``helpers``: tests/ is on pytest's pythonpath)."""
+
+import numpy as np
+from tricharge.bem.capacitance import capacitance_matrix
+from tricharge.bem.panels import make_panels
+
+
+def solve_shape(vertices, triangles, labels=None, names=None):
+    """Capacitance result for arrays in metres (labels default to one conductor)."""
+    panels = make_panels(vertices, triangles)
+    labels = np.zeros(len(panels), np.int64) if labels is None else labels
+    names = names or [f"c{k + 1}" for k in range(int(labels.max()) + 1)]
+    return capacitance_matrix(panels, labels, names)
+
+
+def observed_order(sizes, errors):
+    """Least-squares slope of log|error| against log(panel size)."""
+    return float(np.polyfit(np.log(sizes), np.log(np.abs(errors)), 1)[0])
