@@ -79,7 +79,8 @@ class GaussCheck:
 
     flux_charge : eps0 times the flux of E through the sphere, coulombs
     enclosed_charge : sum of the charges of the panels inside the sphere, coulombs
-    relative_error : (flux_charge - enclosed_charge) / |enclosed_charge|
+    relative_error : (flux_charge - enclosed_charge) / |enclosed_charge| (or over the
+        total absolute charge when the sphere encloses none)
     """
 
     center: tuple[float, float, float]
@@ -127,5 +128,7 @@ def gauss_check(panels: Panels, sigma, center, radius: float, *, eps_r: float = 
     points, normals, weights = sphere_quadrature(center, radius, n_theta)
     e = field_at(points, panels, sigma, policy=policy)
     flux_charge = EPS0 * eps_r * float(np.einsum("md,md,m->", e, normals, weights))
-    enclosed = eps_r * float(np.sum(np.asarray(sigma)[inside] * panels.areas[inside]))
-    return GaussCheck(tuple(map(float, center)), float(radius), flux_charge, enclosed, (flux_charge - enclosed) / abs(enclosed))
+    charges = eps_r * np.asarray(sigma) * panels.areas
+    enclosed = float(np.sum(charges[inside]))
+    scale = abs(enclosed) if enclosed != 0 else float(np.sum(np.abs(charges)))  # empty sphere: relative to all charge
+    return GaussCheck(tuple(map(float, center)), float(radius), flux_charge, enclosed, (flux_charge - enclosed) / scale)

@@ -1,0 +1,100 @@
+"""The command line, called in-process through ``main([...])``."""
+
+import json
+import subprocess
+import sys
+
+import numpy as np
+import pytest
+import trimesh
+
+from tricharge import shapes
+from tricharge.cli import main
+
+
+def _sphere_stl(tmp_path, radius=10.0, frequency=4):
+    path = tmp_path / "ball.stl"
+    trimesh.Trimesh(*shapes.sphere(radius, frequency), process=False).export(path)
+    return path
+
+
+def test_solve_prints_the_matrix_and_writes_json(tmp_path, capsys):
+    out = tmp_path / "ball.json"
+    assert main(["solve", str(_sphere_stl(tmp_path)), "--unit", "mm", "--json", str(out)]) == 0
+    text = capsys.readouterr().out
+    assert "Capacitance matrix, Maxwell form" in text and "(values in pF)" in text
+    assert "320 panels" in text and "c1 - infinity" in text
+    data = json.loads(out.read_text())
+    assert data["conductors"] == ["c1"] and data["panels"] == 320  # stable keys of DESIGN.md
+    # 10 mm sphere: 4 pi eps0 * 0.01 m = 1.1127 pF; this coarse mesh is 1.3% low
+    assert data["capacitance_matrix"][0][0] == pytest.approx(1.11265e-12, rel=0.02)
+    assert data["unit"] == "mm" and data["method"] == "dense" and data["checks"]["problems"] == []
+    assert not list(tmp_path.glob("*.tmp"))
+
+
+def test_unit_option_scales_the_result(tmp_path):
+    path = _sphere_stl(tmp_path)
+    results = {}
+    for unit in ("mm", "in"):
+        out = tmp_path / f"{unit}.json"
+        assert main(["solve", str(path), "--unit", unit, "--json", str(out), "--quiet"]) == 0
+        results[unit] = json.loads(out.read_text())["capacitance_matrix"][0][0]
+    assert results["in"] / results["mm"] == pytest.approx(25.4, rel=1e-9)
+
+
+def test_demo_matrix_is_physical_and_mirror_symmetric(tmp_path, capsys):
+    """Regression of our own demo (no published value): checks pass, pin1 and pin3 are mirror images."""
+    out = tmp_path / "demo.json"
+    assert main(["demo", "--json", str(out)]) == 0
+    assert "pin1" in capsys.readouterr().out
+    data = json.loads(out.read_text())
+    c = np.array(data["capacitance_matrix"])
+    assert data["conductors"] == ["pin1", "pin2", "pin3", "shield"]
+    assert data["checks"]["problems"] == []
+    assert c[0, 0] == pytest.approx(c[2, 2], rel=1e-4)
+    assert abs(c[0, 2]) < abs(c[0, 1])  # the far pin couples less than the neighbour
+    np.testing.assert_allclose(np.array(data["mutual_matrix"]).diagonal(), c.sum(axis=1), rtol=1e-12)
+
+
+@pytest.mark.parametrize("setup, args, message", [
+    (None, ["solve", "{tmp}/missing.msh"], "missing.msh: file not found"),
+    ("part.xyz", ["solve", "{tmp}/part.xyz"], "unknown mesh format '.xyz'"),
+    ("bad.msh", ["solve", "{tmp}/bad.msh"], "bad.msh: not a readable Gmsh file"),
+    ("empty.stl", ["solve", "{tmp}/empty.stl"], "empty.stl: the mesh has no triangles"),
+    ("degenerate.stl", ["solve", "{tmp}/degenerate.stl"], "1 degenerate (zero-area) triangles"),
+    ("ball", ["solve", "{tmp}/ball.stl", "--unit", "furlong"], "Invalid value for '--unit'"),
+    ("ball", ["solve", "{tmp}/ball.stl", "--json", "{tmp}/no/such/dir/out.json"], "does not exist"),
+])
+def test_bad_input_gives_one_line_and_exit_2(tmp_path, capsys, setup, args, message):
+    contents = {
+        "part.xyz": "1 2 3",
+        "bad.msh": "this is not a mesh",
+        "empty.stl": "solid x\nendsolid x\n",
+        "degenerate.stl": "solid x\nfacet normal 0 0 1\nouter loop\nvertex 0 0 0\nvertex 1 0 0\nvertex 2 0 0\n"
+                          "endloop\nendfacet\nendsolid x\n",
+    }
+    if setup == "ball":
+        _sphere_stl(tmp_path)
+    elif setup:
+        (tmp_path / setup).write_text(contents[setup])
+    code = main([a.format(tmp=tmp_path) for a in args])
+    err = capsys.readouterr().err
+    assert code == 2
+    assert err.count("\n") == 1 and err.startswith("tricharge: error: ") and message in err
+    assert "Traceback" not in err
+    assert not list(tmp_path.rglob("*.json"))
+
+
+def test_console_script_exit_status_and_no_traceback(tmp_path):
+    """The module entry point exits 2 on bad input, like the installed script."""
+    proc = subprocess.run([sys.executable, "-m", "tricharge", "solve", str(tmp_path / "none.stl")],
+                          capture_output=True, text=True)
+    assert proc.returncode == 2
+    assert proc.stderr.strip() == f"tricharge: error: {tmp_path / 'none.stl'}: file not found; check the path"
+
+
+def test_version_and_help(capsys):
+    assert main(["--version"]) == 0
+    assert "tricharge, version" in capsys.readouterr().out
+    assert main(["solve", "--help"]) == 0
+    assert "--unit" in capsys.readouterr().out

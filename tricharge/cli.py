@@ -1,0 +1,114 @@
+"""Command line: parse arguments, call the library, report. No numerics here.
+
+Exit status: 0 success, 2 bad input (one line on stderr), 1 internal error.
+"""
+
+from __future__ import annotations
+
+import os
+import sys
+from importlib import resources
+from pathlib import Path
+
+import click
+
+from . import __version__
+from .errors import TrichargeError
+from .units import LENGTH_UNITS
+
+DEMO_MESH = "demo_header.msh"
+DEMO_UNIT = "mm"
+
+
+def _echo(text: str, quiet: bool) -> None:
+    if not quiet:
+        click.echo(text)
+
+
+def _solve_and_report(path: Path, unit: str, json_path: Path | None, quiet: bool) -> None:
+    from .io.export import check_writable, write_json
+    from .io.meshes import read_mesh
+    from .io.text import plural, result_report
+    from .pipeline import solve
+
+    if json_path is not None:
+        check_writable(json_path)
+    model = read_mesh(path, unit=unit)
+    _echo(f"read {path.name}: {plural(len(model.conductors), 'conductor')} ({', '.join(model.conductors)}), "
+          f"{plural(model.n_panels, 'panel')}; solving ...", quiet)
+    result = solve(model)
+    _echo(result_report(result, source=path.name, unit=unit, version=__version__), quiet)
+    if json_path is not None:
+        write_json(json_path, result, input_file=str(path), unit=unit, tricharge_version=__version__)
+        _echo(f"\nwrote {json_path}", quiet)
+
+
+@click.group(context_settings={"help_option_names": ["-h", "--help"]})
+@click.version_option(__version__, prog_name="tricharge")
+def cli():
+    """Capacitance matrices and surface fields of 3D conductors (boundary elements)."""
+
+
+_unit_option = click.option("--unit", "unit", type=click.Choice(list(LENGTH_UNITS)), default="m", show_default=True,
+                            help="Length unit of the mesh coordinates.")
+_json_option = click.option("--json", "json_path", type=click.Path(dir_okay=False, path_type=Path),
+                            help="Also write the result as JSON to this file.")
+_quiet_option = click.option("--quiet", "-q", is_flag=True, help="Print nothing but errors.")
+
+
+@cli.command()
+@click.argument("input_path", metavar="INPUT", type=click.Path(path_type=Path))
+@_unit_option
+@_json_option
+@_quiet_option
+def solve(input_path: Path, unit: str, json_path: Path | None, quiet: bool):
+    """Capacitance matrix of the conductors in a surface mesh INPUT (.msh .stl .obj .ply .vtk .vtu).
+
+    Each Gmsh physical surface group is one conductor; without groups, each
+    connected piece of surface is one, named c1, c2, ... .
+    """
+    _solve_and_report(input_path, unit, json_path, quiet)
+
+
+@cli.command()
+@_json_option
+@_quiet_option
+def demo(json_path: Path | None, quiet: bool):
+    """Solve the built-in demo: a three-pin header over a shield plate (mm)."""
+    with resources.as_file(resources.files("tricharge") / "data" / DEMO_MESH) as path:
+        _solve_and_report(path, DEMO_UNIT, json_path, quiet)
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Run the command line in-process and return the exit status (for tests and ``run``)."""
+    try:
+        cli.main(args=argv, prog_name="tricharge", standalone_mode=False)
+    except click.exceptions.Exit as exc:
+        return exc.exit_code
+    except click.exceptions.Abort:
+        click.echo("tricharge: interrupted; no output was written", err=True)
+        return 130
+    except click.exceptions.NoArgsIsHelpError as exc:
+        click.echo(exc.format_message())
+        return 2
+    except click.ClickException as exc:
+        click.echo(f"tricharge: error: {exc.format_message()}", err=True)
+        return 2
+    except TrichargeError as exc:
+        click.echo(f"tricharge: error: {exc}", err=True)
+        return 2
+    except KeyboardInterrupt:
+        click.echo("tricharge: interrupted; no output was written", err=True)
+        return 130
+    except Exception as exc:  # an internal error: say so in one line, traceback on request
+        if os.environ.get("TRICHARGE_DEBUG"):
+            raise
+        click.echo(f"tricharge: internal error: {type(exc).__name__}: {exc} "
+                   "(set TRICHARGE_DEBUG=1 for a traceback, and please report it)", err=True)
+        return 1
+    return 0
+
+
+def run() -> None:
+    """Console-script entry point."""
+    sys.exit(main())
