@@ -33,9 +33,9 @@ def test_gmsh_physical_names_become_conductors(tmp_path, fmt):
     path = tmp_path / "parts.msh"
     v, t, labels = _write_gmsh(path, fmt)
     model = load(path, unit="mm")
-    assert model.conductors == ("lead", "pad")
+    assert model.conductor_names == ("lead", "pad")
     assert model.n_panels == len(t)
-    np.testing.assert_array_equal(np.bincount(model.labels), np.bincount(labels))
+    np.testing.assert_array_equal(np.bincount(model.conductor_labels), np.bincount(labels))
     assert np.ptp(model.vertices[:, 0]) == pytest.approx(np.ptp(v[:, 0]) * 1e-3)
     assert model.unit == "mm" and model.source == str(path)
 
@@ -45,7 +45,7 @@ def test_gmsh_groups_without_names_and_ignored_cells(tmp_path):
     lines = ("line", np.array([[0, 1], [1, 2]]))
     _, t, _ = _write_gmsh(path, "gmsh22", names=False, extra_cells=[lines])
     model = load(path)
-    assert model.conductors == ("group7", "group8")
+    assert model.conductor_names == ("group7", "group8")
     assert model.n_panels == len(t)
 
 
@@ -55,9 +55,9 @@ def test_trimesh_formats_split_into_components(tmp_path, ending):
     path = tmp_path / f"parts.{ending}"
     trimesh.Trimesh(v, t, process=False).export(path)
     model = load(path, unit="cm")
-    assert model.conductors == ("c1", "c2")
+    assert model.conductor_names == ("c1", "c2")
     assert model.n_panels == len(t)
-    assert np.bincount(model.labels).tolist() == np.bincount(labels).tolist()
+    assert np.bincount(model.conductor_labels).tolist() == np.bincount(labels).tolist()
     assert len(model.vertices) == len(v)  # duplicated STL vertices merged back
     assert model.vertices.max() == pytest.approx(v.max() * 1e-2)
 
@@ -79,7 +79,7 @@ def test_components_numbered_by_lowest_triangle(tmp_path):
     path = tmp_path / "swapped.stl"
     trimesh.Trimesh(v, t[order], process=False).export(path)
     model = load(path)
-    small = model.labels[model.vertices[model.triangles[:, 0], 0] > 3.0]
+    small = model.conductor_labels[model.vertices[model.triangles[:, 0], 0] > 3.0]
     assert set(small.tolist()) == {1}  # the first cube written second is c2
 
 
@@ -89,7 +89,7 @@ def test_vtu_with_quads(tmp_path):
     path = tmp_path / "quad.vtu"
     meshio.write(path, meshio.Mesh(points, [("quad", quads)]))
     model = load(path)
-    assert model.n_panels == 2 and model.conductors == ("c1",)
+    assert model.n_panels == 2 and model.conductor_names == ("c1",)
 
 
 def test_unknown_unit_and_missing_file(tmp_path):
@@ -126,8 +126,8 @@ def test_model_from_arrays_validates():
 
     v, t = shapes.cube(1.0, 2)
     model = Model.from_arrays(v, t, unit="mm")
-    assert model.conductors == ("c1",) and model.vertices.max() == pytest.approx(0.5e-3)
-    with pytest.raises(MeshError, match="conductor names must be unique, repeated: a"):
+    assert model.conductor_names == ("c1",) and model.vertices.max() == pytest.approx(0.5e-3)
+    with pytest.raises(MeshError, match="surface names must be unique, repeated: a"):
         Model.from_arrays(v, t, labels=np.r_[np.zeros(10), np.ones(len(t) - 10)], conductors=("a", "a"))
-    with pytest.raises(MeshError, match="conductors without triangles: b"):
+    with pytest.raises(MeshError, match="surfaces without triangles: b"):
         Model.from_arrays(v, t, labels=np.zeros(len(t)), conductors=("a", "b"))

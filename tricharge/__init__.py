@@ -8,7 +8,7 @@
 
 from .bem.capacitance import Result
 from .errors import TrichargeError
-from .io.meshes import read_mesh as load
+from .io.modelfile import load
 from .model import Model
 from .pipeline import solve
 

@@ -25,16 +25,17 @@ def _echo(text: str, quiet: bool) -> None:
         click.echo(text)
 
 
-def _solve_and_report(path: Path, unit: str, json_path: Path | None, quiet: bool) -> None:
+def _solve_and_report(path: Path, unit: str | None, json_path: Path | None, quiet: bool) -> None:
     from .io.export import check_writable, write_json
-    from .io.meshes import read_mesh
+    from .io.modelfile import load
     from .io.text import plural, result_report
     from .pipeline import solve
 
     if json_path is not None:
         check_writable(json_path)
-    model = read_mesh(path, unit=unit)
-    _echo(f"read {path.name}: {plural(len(model.conductors), 'conductor')} ({', '.join(model.conductors)}), "
+    model = load(path, unit=unit)
+    unit = model.unit
+    _echo(f"read {path.name}: {plural(len(model.conductors), 'conductor')} ({', '.join(model.conductor_names)}), "
           f"{plural(model.n_panels, 'panel')}; solving ...", quiet)
     result = solve(model)
     _echo(result_report(result, source=path.name, unit=unit, version=__version__), quiet)
@@ -49,8 +50,8 @@ def cli():
     """Capacitance matrices and surface fields of 3D conductors (boundary elements)."""
 
 
-_unit_option = click.option("--unit", "unit", type=click.Choice(list(LENGTH_UNITS)), default="m", show_default=True,
-                            help="Length unit of the mesh coordinates.")
+_unit_option = click.option("--unit", "unit", type=click.Choice(list(LENGTH_UNITS)), default=None,
+                            help="Length unit of the mesh coordinates [default: m, or the model file's unit].")
 _json_option = click.option("--json", "json_path", type=click.Path(dir_okay=False, path_type=Path),
                             help="Also write the result as JSON to this file.")
 _quiet_option = click.option("--quiet", "-q", is_flag=True, help="Print nothing but errors.")
@@ -61,13 +62,33 @@ _quiet_option = click.option("--quiet", "-q", is_flag=True, help="Print nothing 
 @_unit_option
 @_json_option
 @_quiet_option
-def solve(input_path: Path, unit: str, json_path: Path | None, quiet: bool):
-    """Capacitance matrix of the conductors in a surface mesh INPUT (.msh .stl .obj .ply .vtk .vtu).
+def solve(input_path: Path, unit: str | None, json_path: Path | None, quiet: bool):
+    """Capacitance matrix of the conductors in INPUT: a surface mesh (.msh .stl .obj .ply
+    .vtk .vtu) or a model file (.toml) that says what the mesh surfaces are.
 
-    Each Gmsh physical surface group is one conductor; without groups, each
-    connected piece of surface is one, named c1, c2, ... .
+    In a bare mesh each Gmsh physical surface group is one conductor; without groups,
+    each connected piece of surface is one, named c1, c2, ... .
     """
     _solve_and_report(input_path, unit, json_path, quiet)
+
+
+@cli.command()
+@click.argument("input_path", metavar="INPUT", type=click.Path(path_type=Path))
+@_unit_option
+def inspect(input_path: Path, unit: str | None):
+    """Show what tricharge makes of INPUT (a mesh or a .toml model file): parts, sizes, problems.
+
+    Exit status 2 when the model has errors that stop a solve.
+    """
+    from .errors import MeshError
+    from .io.modelfile import load
+    from .io.text import survey_report
+
+    model = load(input_path, unit=unit, check=False)
+    click.echo(survey_report(model, version=__version__))
+    if model.problems:
+        more = f" (and {len(model.problems) - 1} more, listed above)" if len(model.problems) > 1 else ""
+        raise MeshError(model.problems[0] + more)
 
 
 @cli.command()

@@ -116,3 +116,166 @@ def connected_components(triangles) -> np.ndarray:
     renumber = np.empty(tri_comp.max() + 1, dtype=np.int64)
     renumber[np.unique(tri_comp)[order]] = np.arange(len(order))
     return renumber[tri_comp]
+
+
+def aspect_ratios(vertices, triangles) -> np.ndarray:
+    """(m,) shape quality: longest edge squared over twice the area, times sqrt(3)/2.
+
+    1 for an equilateral triangle, growing without bound for needles and slivers.
+    """
+    c = np.asarray(vertices)[np.asarray(triangles)]
+    edges = np.roll(c, -1, axis=1) - c
+    longest2 = np.einsum("med,med->me", edges, edges).max(axis=1)
+    double_area = np.linalg.norm(np.cross(edges[:, 0], -edges[:, 2]), axis=1)
+    with np.errstate(divide="ignore"):
+        return np.where(double_area > 0, longest2 / double_area * (np.sqrt(3.0) / 2.0), np.inf)
+
+
+def edge_use(triangles) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Undirected edges and how triangles use them.
+
+    Returns
+    -------
+    edges : (e, 2) int64, sorted vertex pairs
+    count : (e,) triangles using each edge (1 boundary, 2 manifold, more non-manifold)
+    same_direction : (e,) bool, True where two triangles traverse the edge in the same
+        direction (their normals are inconsistent across it)
+    """
+    t = np.asarray(triangles, dtype=np.int64)
+    directed = np.stack([t, np.roll(t, -1, axis=1)], axis=2).reshape(-1, 2)
+    forward = directed[:, 0] < directed[:, 1]
+    undirected = np.sort(directed, axis=1)
+    edges, inverse, count = np.unique(undirected, axis=0, return_inverse=True, return_counts=True)
+    inverse = inverse.ravel()
+    n_forward = np.bincount(inverse, weights=forward, minlength=len(edges))
+    same_direction = (count == 2) & (n_forward != 1)
+    return edges, count, same_direction
+
+
+def signed_volume(vertices, triangles) -> float:
+    """Volume enclosed by a closed surface, positive when its normals point outward (m^3)."""
+    c = np.asarray(vertices)[np.asarray(triangles)]
+    return float(np.einsum("md,md->", c[:, 0], np.cross(c[:, 1], c[:, 2])) / 6.0)
+
+
+def orient_consistently(triangles) -> tuple[np.ndarray, int]:
+    """Flip triangles so neighbours across every manifold edge agree in orientation.
+
+    Works per connected piece by breadth-first search from its lowest triangle, which
+    keeps its orientation. Non-manifold edges are not crossed.
+
+    Returns the reoriented triangles and the number of flipped triangles.
+    """
+    from collections import deque
+
+    t = np.array(triangles, dtype=np.int64)
+    m = len(t)
+    directed = np.stack([t, np.roll(t, -1, axis=1)], axis=2).reshape(-1, 2)
+    undirected = np.sort(directed, axis=1)
+    _, inverse, count = np.unique(undirected, axis=0, return_inverse=True, return_counts=True)
+    inverse = inverse.ravel()
+    owner = np.repeat(np.arange(m), 3)
+    order = np.argsort(inverse, kind="stable")
+    manifold = count[inverse[order]] == 2
+    pairs = order[manifold].reshape(-1, 2)  # the two directed uses of each manifold edge
+    neighbours = [[] for _ in range(m)]
+    for a, b in pairs:
+        same = directed[a, 0] == directed[b, 0]  # same start vertex: same direction
+        neighbours[owner[a]].append((owner[b], same))
+        neighbours[owner[b]].append((owner[a], same))
+    flip = np.zeros(m, dtype=bool)
+    seen = np.zeros(m, dtype=bool)
+    for start in range(m):
+        if seen[start]:
+            continue
+        seen[start] = True
+        queue = deque([start])
+        while queue:
+            i = queue.popleft()
+            for j, same in neighbours[i]:
+                if not seen[j]:
+                    seen[j] = True
+                    flip[j] = flip[i] ^ same
+                    queue.append(j)
+    t[flip] = t[flip][:, ::-1]
+    return t, int(flip.sum())
+
+
+def winding_numbers(points, vertices, triangles) -> np.ndarray:
+    """(p,) winding number of a closed surface around each point: sum of signed solid
+    angles over 4 pi. About 1 inside an outward-oriented closed surface, 0 outside.
+
+    Uses van Oosterom & Strackee, IEEE Trans. Biomed. Eng. 30(2), 1983, for each
+    triangle's solid angle.
+    """
+    c = np.asarray(vertices, dtype=np.float64)[np.asarray(triangles)]
+    out = np.empty(len(points))
+    for k, x in enumerate(np.asarray(points, dtype=np.float64)):
+        a, b, d = c[:, 0] - x, c[:, 1] - x, c[:, 2] - x
+        na, nb, nd = (np.linalg.norm(v, axis=1) for v in (a, b, d))
+        numerator = np.einsum("md,md->m", a, np.cross(b, d))
+        denominator = (na * nb * nd + np.einsum("md,md->m", a, b) * nd + np.einsum("md,md->m", a, d) * nb
+                       + np.einsum("md,md->m", b, d) * na)
+        out[k] = np.sum(2.0 * np.arctan2(numerator, denominator)) / (4.0 * np.pi)
+    return out
+
+
+def segments_cross_triangles(p0, p1, corners, tolerance: float = 1e-12) -> np.ndarray:
+    """(p,) True where segment p0[k]-p1[k] passes through triangle corners[k] (pairs).
+
+    Möller-Trumbore test restricted to the segment; touching at an end point within
+    ``tolerance`` (relative) also counts. Parallel segments never cross.
+    """
+    a, b, c = corners[:, 0], corners[:, 1], corners[:, 2]
+    d = p1 - p0
+    e1, e2 = b - a, c - a
+    h = np.cross(d, e2)
+    det = np.einsum("pd,pd->p", e1, h)
+    ok = np.abs(det) > 1e-14 * np.linalg.norm(e1, axis=1) * np.linalg.norm(e2, axis=1) * np.linalg.norm(d, axis=1)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        inv = 1.0 / det
+        s = p0 - a
+        u = inv * np.einsum("pd,pd->p", s, h)
+        q = np.cross(s, e1)
+        v = inv * np.einsum("pd,pd->p", d, q)
+        t = inv * np.einsum("pd,pd->p", e2, q)
+    eps = tolerance
+    with np.errstate(invalid="ignore"):
+        return ok & (u >= -eps) & (v >= -eps) & (u + v <= 1 + eps) & (t >= -eps) & (t <= 1 + eps)
+
+
+def triangles_intersect(corners_a, corners_b) -> np.ndarray:
+    """(p,) True where triangle pairs cross or touch (an edge of one meets the other)."""
+    hit = np.zeros(len(corners_a), dtype=bool)
+    for first, second in ((corners_a, corners_b), (corners_b, corners_a)):
+        for k in range(3):
+            hit |= segments_cross_triangles(first[:, k], first[:, (k + 1) % 3], second)
+    return hit
+
+
+def pairs_within(targets, centers, radii) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """All (target i, center j) with ``|targets[i] - centers[j]| < radii[j]``.
+
+    Centers are grouped by radius in powers of two, each group searched with its largest
+    radius, so strongly graded meshes do not pay for their biggest panel everywhere.
+
+    Returns
+    -------
+    i : (p,) int64; j : (p,) int64; distance : (p,) float64
+    """
+    targets = np.asarray(targets, dtype=np.float64)
+    centers = np.asarray(centers, dtype=np.float64)
+    radii = np.asarray(radii, dtype=np.float64)
+    target_tree = cKDTree(targets)
+    size_class = np.floor(np.log2(radii / radii.min())).astype(np.int64)
+    found_i, found_j = [np.zeros(0, np.int64)], [np.zeros(0, np.int64)]
+    for c in np.unique(size_class):
+        members = np.flatnonzero(size_class == c)
+        hits = cKDTree(centers[members]).sparse_distance_matrix(target_tree, radii[members].max(),
+                                                                output_type="ndarray")
+        found_j.append(members[hits["i"]])
+        found_i.append(hits["j"].astype(np.int64))
+    i, j = np.concatenate(found_i), np.concatenate(found_j)
+    distance = np.linalg.norm(targets[i] - centers[j], axis=1)
+    keep = distance < radii[j]
+    return i[keep], j[keep], distance[keep]

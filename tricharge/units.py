@@ -45,3 +45,27 @@ def format_eng(value: float, unit: str, digits: int = 4) -> str:
     """
     scale, symbol = prefix_for(value)
     return f"{value / scale:.{digits}g} {symbol}{unit}"
+
+
+_SI_PREFIX = {"a": 1e-18, "f": 1e-15, "p": 1e-12, "n": 1e-9, "u": 1e-6, "µ": 1e-6, "m": 1e-3, "": 1.0,
+              "k": 1e3, "M": 1e6, "G": 1e9}
+
+
+def parse_quantity(value, unit: str, *, what: str = "value") -> float:
+    """A number, or text like ``"12kV"``, ``"3.3 V"``, ``"-500 mV"``, ``"2e3"``, in base units.
+
+    >>> parse_quantity("12kV", "V"), parse_quantity(" -500 mV", "V"), parse_quantity(3.3, "V")
+    (12000.0, -0.5, 3.3)
+    """
+    import re
+
+    if isinstance(value, bool):
+        raise OptionError(f"{what}: expected a number of {unit} or a text like '12k{unit}', got {value!r}")
+    if isinstance(value, (int, float)):
+        return float(value)
+    text = str(value).strip()
+    match = re.fullmatch(r"([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*([afpnuµmkMG]?)" + re.escape(unit) + r"?",
+                         text)
+    if not match or (match.group(2) and not text.endswith(unit)):
+        raise OptionError(f"{what}: cannot read {value!r} as {unit}; write a number like 1500 or '1.5k{unit}'")
+    return float(match.group(1)) * _SI_PREFIX[match.group(2)]

@@ -15,10 +15,10 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.spatial import cKDTree
 from scipy.spatial.distance import cdist
 from scipy.sparse.linalg import LinearOperator
 
+from ..mesh import pairs_within
 from .integrals import point_rule_field, point_rule_potential, triangle_field, triangle_potential
 from .panels import QUADRATURE_RULES, Panels
 
@@ -66,20 +66,8 @@ def near_pairs(targets: np.ndarray, panels: Panels, within: float) -> tuple[np.n
     j : (p,) int64 panel indices
     rel : (p,) float64 distance target-to-centroid divided by the panel's size
     """
-    target_tree = cKDTree(targets)
-    size_class = np.floor(np.log2(panels.sizes / panels.sizes.min())).astype(np.int64)
-    found_i, found_j = [], []
-    for c in np.unique(size_class):  # panels of similar size share one search radius
-        members = np.flatnonzero(size_class == c)
-        radius = within * panels.sizes[members].max()
-        hits = cKDTree(panels.centroids[members]).sparse_distance_matrix(
-            target_tree, radius, output_type="ndarray")
-        found_j.append(members[hits["i"]])
-        found_i.append(hits["j"].astype(np.int64))
-    i, j = np.concatenate(found_i), np.concatenate(found_j)
-    rel = np.linalg.norm(targets[i] - panels.centroids[j], axis=1) / panels.sizes[j]
-    keep = rel < within
-    i, j, rel = i[keep], j[keep], rel[keep]
+    i, j, distance = pairs_within(targets, panels.centroids, within * panels.sizes)
+    rel = distance / panels.sizes[j]
     return i, j, rel
 
 

@@ -80,3 +80,43 @@ def result_report(result, *, source: str, unit: str, version: str) -> str:
         "Checks:\n" + checks_text(result.checks),
         "Discretisation error is not estimated yet: refine the mesh and compare to judge it.",
     ])
+
+
+def _table(rows: list[list[str]], right: set[int]) -> list[str]:
+    widths = [max(len(r[c]) for r in rows) for c in range(len(rows[0]))]
+    return ["  " + "  ".join(cell.rjust(w) if c in right else cell.ljust(w) for c, (cell, w) in
+                             enumerate(zip(row, widths))).rstrip() for row in rows]
+
+
+def survey_report(model, *, version: str) -> str:
+    """The text ``inspect`` prints: parts, media, notes, warnings and errors."""
+    from ..units import metres_per
+
+    scale = metres_per(model.unit)
+    u = model.unit
+    survey = model.survey
+    counts = [plural(len(model.conductors), "conductor")]
+    if model.interfaces:
+        counts.append(plural(len(model.interfaces), "interface"))
+    head = f"tricharge {version}: {model.source} (unit {u}): {', '.join(counts)}, {plural(model.n_panels, 'panel')}"
+    lines = [head]
+    ground = f"z = {model.ground_z / scale:g} {u}" if model.ground_z is not None else "none"
+    media = ", ".join(f"{m.name} {m.permittivity:g}" for m in model.media) or "vacuum 1"
+    lines.append(f"ground plane: {ground}; background medium: {model.background}; "
+                 f"relative permittivities: {media}")
+    header = ["name", "surfaces", "condition" if model.interfaces == () else "condition / sides", "panels",
+              f"area {u}2", f"x {u}", f"y {u}", f"z {u}", f"panel size {u}", "worst aspect", "surface"]
+    rows = [header]
+    for p in survey.parts:
+        box = [f"{lo / scale:.4g}..{hi / scale:.4g}" for lo, hi in zip(p.bbox_min, p.bbox_max)]
+        rows.append([f"{p.name}" + (" (interface)" if p.kind == "interface" else ""), ", ".join(p.surfaces),
+                     p.detail, f"{p.panels:,}", f"{p.area / scale**2:.4g}", *box,
+                     f"{p.smallest / scale:.3g}..{p.largest / scale:.3g}", f"{p.worst_aspect:.3g}",
+                     "closed" if p.closed else "open (thin sheet)" if p.kind == "conductor" else "open"])
+    lines += [""] + _table(rows, right={3, 4, 9})
+    for title, items in (("notes", model.notes), ("warnings", survey.warnings), ("errors", model.problems)):
+        if items:
+            lines += ["", f"{title}:"] + [f"  - {item}" for item in items]
+    if not model.problems:
+        lines += ["", "no errors: the model can be solved"]
+    return "\n".join(lines)

@@ -1,0 +1,183 @@
+"""Model files (TOML): keys, references, errors; and round trips across mesh formats."""
+
+import json
+
+import meshio
+import numpy as np
+import pytest
+import trimesh
+
+from tricharge import load, shapes, solve
+from tricharge.cli import main
+from tricharge.errors import TrichargeError
+from tricharge.io.modelfile import ModelFileError
+from tricharge.pipeline import NotSolvableYet
+
+
+def _two_bodies():
+    """A sphere and a cube (metres), labels 0 and 1."""
+    return shapes.combine(shapes.sphere(0.5, 4), shapes.cube(0.8, 4, center=(1.5, 0, 0)))
+
+
+def _write_msh(path, names=("ball", "block")):
+    v, t, labels = _two_bodies()
+    tags = [np.full(int((labels == k).sum()), k + 1, np.int32) for k in (0, 1)]
+    cells = [("triangle", t[labels == k]) for k in (0, 1)]
+    field = {n: np.array([k + 1, 2]) for k, n in enumerate(names)}
+    meshio.write(path, meshio.Mesh(v, cells, cell_data={"gmsh:physical": tags, "gmsh:geometrical": tags},
+                                   field_data=field), file_format="gmsh22", binary=False)
+
+
+def _write(tmp_path, text, name="model.toml"):
+    path = tmp_path / name
+    path.write_text(text)
+    return path
+
+
+FULL = """
+mesh = "parts.msh"
+unit = "mm"
+background = "air"
+
+[ground]
+z = -1000
+
+[media]
+air = 1.0
+oil = 2.2
+
+[conductors.hv]
+surfaces = ["ball"]
+medium = "oil"
+volts = "12 kV"
+
+[conductors.case]
+surfaces = [2]      # by Gmsh group number
+floating = true
+net_charge = 1e-12
+"""
+
+
+def test_full_model_file(tmp_path):
+    _write_msh(tmp_path / "parts.msh")
+    model = load(_write(tmp_path, FULL))
+    assert model.unit == "mm" and model.background == "air"
+    assert model.ground_z == pytest.approx(-1.0)
+    assert model.conductor_names == ("hv", "case")
+    hv, case = model.conductors
+    assert hv.voltage == 12000.0 and hv.surfaces == ("ball",) and not hv.floating
+    assert case.floating and case.net_charge == 1e-12 and case.surfaces == ("block",)
+    assert model.medium_of_surface("ball") == "oil" and model.medium_of_surface("block") == "air"
+    assert model.permittivity("oil") == 2.2
+    assert model.vertices.max() < 2e-3  # millimetres converted to metres
+
+
+def test_model_file_solves_like_the_mesh(tmp_path):
+    _write_msh(tmp_path / "parts.msh")
+    path = _write(tmp_path, 'mesh = "parts.msh"\nunit = "mm"\n')
+    by_model, by_mesh = solve(load(path)), solve(load(tmp_path / "parts.msh", unit="mm"))
+    assert by_model.conductors == by_mesh.conductors == ("ball", "block")
+    np.testing.assert_array_equal(by_model.capacitance, by_mesh.capacitance)
+    out = tmp_path / "r.json"
+    assert main(["solve", str(path), "--json", str(out), "-q"]) == 0
+    assert json.loads(out.read_text())["unit"] == "mm"
+
+
+def test_homogeneous_medium_scales_the_capacitance(tmp_path):
+    """A background other than vacuum is one setting; C scales with its permittivity (exact)."""
+    _write_msh(tmp_path / "parts.msh")
+    plain = solve(load(_write(tmp_path, 'mesh = "parts.msh"\n', "a.toml")))
+    oil = solve(load(_write(tmp_path, 'mesh = "parts.msh"\nbackground = "oil"\n[media]\noil = 2.2\n', "b.toml")))
+    np.testing.assert_allclose(oil.capacitance, 2.2 * plain.capacitance, rtol=1e-12)
+
+
+def test_features_not_solved_yet_are_refused_not_approximated(tmp_path):
+    _write_msh(tmp_path / "parts.msh")
+    with pytest.raises(NotSolvableYet, match="a ground plane; floating conductors \\(case\\)"):
+        solve(load(_write(tmp_path, FULL)))
+
+
+def test_one_file_per_conductor(tmp_path):
+    v, t, labels = _two_bodies()
+    for k, name in enumerate(("left", "right")):
+        trimesh.Trimesh(v, t[labels == k], process=True).export(tmp_path / f"{name}.stl")
+    path = _write(tmp_path, 'mesh = ["left.stl", "right.stl"]\n[conductors.a]\nsurfaces = ["left"]\n'
+                            '[conductors.b]\nsurfaces = ["right"]\n')
+    model = load(path)
+    assert model.conductor_names == ("a", "b") and model.n_panels == len(t)
+
+
+@pytest.mark.parametrize("text, message", [
+    ('mesh = "parts.msh"\nunits = "mm"\n', r"unknown key 'units'; did you mean 'unit'\?"),
+    ('mesh = "parts.msh"\n[conductors.x]\nsurface = ["ball"]\n', r"unknown key 'conductors.x.surface'; did you mean "
+                                                                 r"'surfaces'\?"),
+    ('mesh = "parts.msh"\n[grund]\nz = 1\n', r"unknown key 'grund'; did you mean 'ground'\?"),
+    ('mesh = "parts.msh"\nzzz = 1\n', "unknown key 'zzz'; valid keys are mesh, unit"),
+    ('unit = "mm"\n', "no 'mesh' key"),
+    ('mesh = "parts.msh"\nunit = "furlong"\n', "unit 'furlong' is unknown"),
+    ('mesh = "parts.msh"\n[media]\nair = -3\n', "'media.air' is -3; a relative permittivity must be >= 1"),
+    ('mesh = "parts.msh"\n[media]\nair = "one"\n', "'media.air' must be a relative permittivity"),
+    ('mesh = "parts.msh"\nbackground = "oil"\n', "background 'oil' is not among the media"),
+    ('mesh = "parts.msh"\n[ground]\nheight = 1\n', "unknown key 'ground.height'"),
+    ('mesh = "parts.msh"\n[conductors.x]\nsurfaces = ["bal"]\n', r"'conductors.x.surfaces' names surface 'bal' but the "
+                                                                r"mesh has ball, block; did you mean 'ball'\?"),
+    ('mesh = "parts.msh"\n[conductors.x]\nsurfaces = ["ball"]\nvolts = "12 kA"\n', "cannot read '12 kA' as V"),
+    ('mesh = "parts.msh"\n[conductors.x]\nsurfaces = ["ball"]\nfloating = "yes"\n', "must be true or false"),
+    ('mesh = "parts.msh"\n[conductors.x]\nsurfaces = ["ball"]\nfloating = true\nvolts = 1\n',
+     "is floating and has volts"),
+    ('mesh = "parts.msh"\n[conductors.x]\nsurfaces = ["ball"]\nnet_charge = 1\n', "only applies to a floating"),
+    ('mesh = "parts.msh"\n[conductors.x]\nsurfaces = ["ball"]\nmedium = "glass"\n', "names 'glass', which is not"),
+    ('mesh = "parts.msh"\n[conductors.x]\nsurfaces = ["ball"]\n', "surfaces block belong to no conductor"),
+    ('mesh = "parts.msh"\n[interfaces.s]\nsurfaces = ["block"]\ninside = "vacuum"\n', "interface 's' needs 'outside'"),
+    ('mesh = "parts.msh"\n[conductors.x]\nsurfaces = ["ball"]\n[conductors.y]\nsurfaces = ["ball", "block"]\n',
+     "surface 'ball' is claimed by both conductor 'x' and conductor 'y'"),
+    ('mesh = "parts.msh"\nmesh = "again.msh"\n', "is not valid TOML"),
+    ('mesh = "missing.msh"\n', "missing.msh: file not found"),
+])
+def test_model_file_errors(tmp_path, text, message):
+    _write_msh(tmp_path / "parts.msh")
+    with pytest.raises(TrichargeError, match=message):
+        load(_write(tmp_path, text))
+
+
+def test_unit_given_twice_must_agree(tmp_path):
+    _write_msh(tmp_path / "parts.msh")
+    path = _write(tmp_path, 'mesh = "parts.msh"\nunit = "mm"\n')
+    assert load(path, unit="mm").unit == "mm"
+    with pytest.raises(ModelFileError, match="the file says unit = 'mm' but 'cm' was asked for"):
+        load(path, unit="cm")
+
+
+def test_same_matrix_from_every_format(tmp_path):
+    """Round trip: .msh (named groups), STL, OBJ (groups) and VTU (region array) agree to 1e-10."""
+    v, t, labels = _two_bodies()
+    _write_msh(tmp_path / "parts.msh")
+    with open(tmp_path / "parts.stl", "w") as f:  # ASCII with full precision (binary STL is float32)
+        f.write("solid parts\n")
+        for tri in v[t]:
+            f.write("facet normal 0 0 0\nouter loop\n")
+            f.writelines(f"vertex {x:.17g} {y:.17g} {z:.17g}\n" for x, y, z in tri)
+            f.write("endloop\nendfacet\n")
+        f.write("endsolid parts\n")
+    with open(tmp_path / "parts.obj", "w") as f:
+        f.writelines(f"v {x:.17g} {y:.17g} {z:.17g}\n" for x, y, z in v)
+        for k, name in enumerate(("ball", "block")):
+            f.write(f"g {name}\n")
+            f.writelines(f"f {a + 1} {b + 1} {c + 1}\n" for a, b, c in t[labels == k])
+    meshio.write(tmp_path / "parts.vtu", meshio.Mesh(v, [("triangle", t)], cell_data={"region": [labels + 1]}))
+    results = {ending: solve(load(tmp_path / f"parts.{ending}")) for ending in ("msh", "stl", "obj", "vtu")}
+    assert results["msh"].conductors == results["obj"].conductors == ("ball", "block")
+    assert results["stl"].conductors == ("c1", "c2") and results["vtu"].conductors == ("region1", "region2")
+    reference = results["msh"].capacitance
+    for ending, result in results.items():
+        np.testing.assert_allclose(result.capacitance, reference, rtol=1e-10, err_msg=ending)
+
+
+def test_unit_option_equals_prescaled_coordinates(tmp_path):
+    """The same mesh read with unit mm, and with coordinates pre-scaled to metres: identical."""
+    v, t = shapes.cube(3.0, 4)  # millimetres
+    trimesh.Trimesh(v, t, process=False).export(tmp_path / "mm.stl")
+    trimesh.Trimesh(v * 1e-3, t, process=False).export(tmp_path / "m.stl")
+    in_mm = solve(load(tmp_path / "mm.stl", unit="mm")).capacitance
+    in_m = solve(load(tmp_path / "m.stl")).capacitance
+    np.testing.assert_allclose(in_mm, in_m, rtol=1e-6)  # STL stores float32 coordinates

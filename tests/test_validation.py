@@ -1,0 +1,167 @@
+"""Every geometry check of tricharge.survey / Model has a test: the message names the
+source and the part, and says what to do."""
+
+import numpy as np
+import pytest
+
+from tricharge import shapes
+from tricharge.errors import MeshError
+from tricharge.mesh import merge_vertices
+from tricharge.model import Conductor, Interface, Medium, Model
+
+
+def conductors_model(*meshes, names=None, unit="m", ground_z=None, check=True):
+    """Several bodies, vertices merged as a mesh reader would."""
+    v, t, labels = shapes.combine(*meshes)
+    v, t = merge_vertices(v, t, 1e-9)
+    names = names or [f"c{k + 1}" for k in range(len(meshes))]
+    return Model(v, t, labels, tuple(names), tuple(Conductor(n, (n,)) for n in names), ground_z=ground_z,
+                 unit=unit, source="test.msh", check=check)
+
+
+def test_needle_triangles_warn_then_refuse():
+    v = np.array([[0, 0, 0], [1, 0, 0], [0.5, 0.02, 0], [0.5, -0.00001, 0]], float)
+    warn = Model.from_arrays(v, [[0, 1, 2]], source="fin.stl")
+    assert any("1 needle triangles" in w and "worst 43.3" in w and "consider remeshing" in w
+               for w in warn.survey.warnings)
+    with pytest.raises(MeshError, match=r"fin.stl: conductor 'c1' has 1 needle triangles .* worst 8.66e\+04 near "
+                                        r"\(0.5, -3.333e-06, 0\) m; above 1000 the solve is unreliable"):
+        Model.from_arrays(v, [[0, 3, 1]], source="fin.stl")
+
+
+def test_non_manifold_edge_is_a_warning():
+    v = np.array([[0, 0, 0], [1, 0, 0], [0.5, 1, 0], [0.5, -1, 0], [0.5, 0, 1]], float)
+    model = Model.from_arrays(v, [[0, 1, 2], [1, 0, 3], [0, 1, 4]], source="tee.stl")
+    assert any("1 non-manifold edges" in w and "thin sheets" in w for w in model.survey.warnings)
+
+
+def test_duplicated_triangles_are_refused():
+    v, t = shapes.plate((1, 1), (2, 2))
+    with pytest.raises(MeshError, match=r"conductor 'c1' has 1 duplicated triangles near .*; remove the copies"):
+        Model.from_arrays(v, np.vstack([t, t[:1]]), source="dup.stl")
+
+
+def test_conductors_sharing_vertices_touch():
+    with pytest.raises(MeshError, match=r"test.msh: conductor 'c1' and conductor 'c2' touch \(shared vertices\) near "
+                                        r"\(0.5, .*\) m; separate them or make them one conductor"):
+        conductors_model(shapes.cube(1.0, 2), shapes.cube(1.0, 2, center=(1.0, 0, 0)))
+
+
+def test_intersecting_conductors():
+    with pytest.raises(MeshError, match="conductor 'c1' and conductor 'c2' cross or touch near .*; move them apart"):
+        conductors_model(shapes.cube(1.0, 4), shapes.cube(1.0, 4, center=(0.5, 0.3, 0.2)))
+
+
+def test_coincident_faces_without_shared_vertices():
+    """Face-to-face contact with different meshes on the two faces."""
+    with pytest.raises(MeshError, match="cross or touch"):
+        conductors_model(shapes.cube(1.0, 3), shapes.cube(1.0, 4, center=(1.0, 0.1, 0.05)))
+
+
+def test_conductor_inside_another():
+    with pytest.raises(MeshError, match="conductor 'c2' lies inside conductor 'c1'"):
+        conductors_model(shapes.cube(2.0, 4), shapes.sphere(0.3, 2))
+
+
+def test_shell_around_a_conductor_is_fine():
+    """A hollow conductor (outer and inner, inward-facing surfaces) around another: not 'inside'."""
+    outer_v, outer_t = shapes.sphere(2.0, 4)
+    inner_v, inner_t = shapes.sphere(1.6, 4)
+    shell = shapes.combine((outer_v, outer_t), (inner_v, inner_t[:, ::-1]))[:2]
+    model = conductors_model(shell, shapes.sphere(0.5, 3), names=["shell", "core"])
+    assert model.problems == ()
+
+
+def test_geometry_below_the_ground_plane():
+    with pytest.raises(MeshError, match=r"test.msh: \d+ vertices lie on or below the ground plane z = 0.5 mm "
+                                        r"\(lowest near .* mm\); raise the geometry or lower the plane"):
+        conductors_model(shapes.cube(1e-3, 2), unit="mm", ground_z=0.5e-3)
+
+
+def test_absurd_size_suggests_the_unit():
+    v, t = shapes.cube(2000.0, 2)  # a 2-km "package": the file was surely in mm
+    with pytest.raises(MeshError, match=r"the model is 3.46e\+03 m across in unit 'm' .* is it 'mm'\?"):
+        Model.from_arrays(v, t, source="pkg.stl")
+    with pytest.raises(MeshError, match="that looks like a wrong unit"):
+        Model.from_arrays(*shapes.cube(1e-3, 2), unit="um")
+
+
+def test_open_conductor_is_valid_and_reported_open():
+    model = Model.from_arrays(*shapes.disk(1.0, 4))
+    assert model.problems == ()
+    assert model.survey.parts[0].closed is False
+
+
+def _interface_model(triangles_fix=None, open_surface=False):
+    cv, ct = shapes.cube(0.4, 2)
+    if open_surface:
+        iv, it = shapes.plate((3, 3), (4, 4), center=(0, 0, -1.0))
+    else:
+        iv, it = shapes.sphere(1.5, 4)
+    if triangles_fix is not None:
+        it = triangles_fix(it)
+    v, t, labels = shapes.combine((cv, ct), (iv, it))
+    return Model(v, t, labels, ("lead", "skin"), (Conductor("lead", ("lead",)),),
+                 (Interface("skin", ("skin",), inside="mold", outside="air"),),
+                 (Medium("air", 1.0), Medium("mold", 3.9)), background="air", conductor_media={"lead": "mold"},
+                 source="pkg.toml")
+
+
+def test_closed_interface_normals_are_repaired_and_reported():
+    def scramble(t):
+        t = t.copy()
+        t[::3] = t[::3, ::-1]
+        return t
+
+    model = _interface_model(scramble)
+    assert any("interface 'skin': turned" in n for n in model.notes)
+    reference = _interface_model()
+    skin = model.interface_labels == 0
+    np.testing.assert_array_equal(model.triangles[skin], reference.triangles[skin])
+
+
+def test_inward_closed_interface_is_turned_outward():
+    model = _interface_model(lambda t: t[:, ::-1])
+    assert any("turned 320 triangles" in n for n in model.notes)
+
+
+def test_open_interface_with_mixed_normals_is_refused():
+    def scramble(t):
+        t = t.copy()
+        t[0] = t[0, ::-1]
+        return t
+
+    assert _interface_model(open_surface=True).problems == ()
+    with pytest.raises(MeshError, match="interface 'skin' is an open surface whose normals disagree across 2 edges"):
+        _interface_model(scramble, open_surface=True)
+
+
+def test_conductor_crossing_an_interface_without_shared_vertices():
+    cv, ct = shapes.box((0.4, 0.4, 3.0), (2, 2, 6))
+    iv, it = shapes.plate((3, 3), (5, 5), center=(0, 0, 0.1))
+    v, t, labels = shapes.combine((cv, ct), (iv, it))
+    with pytest.raises(MeshError, match=r"conductor 'lead' and interface 'skin' cross or touch .*\(split the conductor along the interface\)"):
+        Model(v, t, labels, ("lead", "skin"), (Conductor("lead", ("lead",)),),
+              (Interface("skin", ("skin",), inside="mold", outside="air"),),
+              (Medium("air", 1.0), Medium("mold", 3.9)), background="air", source="pkg.toml")
+
+
+def test_check_false_keeps_the_problems_for_inspect():
+    model = conductors_model(shapes.cube(2.0, 4), shapes.sphere(0.3, 2), check=False)
+    assert len(model.problems) == 1 and "lies inside" in model.problems[0]
+
+
+@pytest.mark.parametrize("kwargs, message", [
+    (dict(conductors=(Conductor("a", ("nope",)),)), "conductor 'a' names surface 'nope' but the mesh has a"),
+    (dict(conductors=()), "the model has no conductors"),
+    (dict(media=(Medium("oil", 0.5),)), "medium 'oil' has relative permittivity 0.5; it must be >= 1"),
+    (dict(background="oil"), "background medium 'oil' is not defined"),
+    (dict(conductors=(Conductor("a", ("a",), voltage=1.0, floating=True),)), "is floating and has a voltage"),
+    (dict(conductor_media={"a": "glass"}), "surface 'a' touches medium 'glass', which is not defined"),
+])
+def test_reference_errors(kwargs, message):
+    v, t = shapes.cube(1.0, 2)
+    args = dict(conductors=(Conductor("a", ("a",)),), source="m.toml")
+    args.update(kwargs)
+    with pytest.raises(MeshError, match=message):
+        Model(v, t, np.zeros(len(t), int), ("a",), **args)
