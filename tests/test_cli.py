@@ -45,7 +45,7 @@ def test_unit_option_scales_the_result(tmp_path):
 def test_demo_matrix_is_physical_and_mirror_symmetric(tmp_path, capsys):
     """Regression of our own demo (no published value): checks pass, pin1 and pin3 are mirror images."""
     out = tmp_path / "demo.json"
-    assert main(["demo", "--json", str(out)]) == 0
+    assert main(["demo", "header", "--json", str(out)]) == 0
     assert "pin1" in capsys.readouterr().out
     data = json.loads(out.read_text())
     c = np.array(data["capacitance_matrix"])
@@ -98,3 +98,38 @@ def test_version_and_help(capsys):
     assert "tricharge, version" in capsys.readouterr().out
     assert main(["solve", "--help"]) == 0
     assert "--unit" in capsys.readouterr().out
+
+
+def test_inspect_shows_parts_media_and_interfaces(capsys):
+    assert main(["demo", "package", "--inspect"]) == 0
+    out = capsys.readouterr().out
+    assert "5 conductors, 1 interface, 6,876 panels" in out
+    assert "ground plane: z = 0 mm; background medium: air" in out and "mold 3.9" in out
+    assert "net1" in out and "lead1, wire1, pad1" in out and "3.3 V, in mold" in out
+    assert "mold_skin (interface)" in out and "mold | air" in out
+    assert "floating" in out and "no errors: the model can be solved" in out
+
+
+def test_inspect_open_sheet_and_warnings(tmp_path, capsys):
+    path = tmp_path / "sheet.stl"
+    v = np.array([[0, 0, 0], [1, 0, 0], [0.5, 0.02, 0]], float)
+    trimesh.Trimesh(v, [[0, 1, 2]], process=False).export(path)
+    assert main(["inspect", str(path)]) == 0
+    out = capsys.readouterr().out
+    assert "open (thin sheet)" in out and "warnings:" in out and "needle triangles" in out
+
+
+def test_inspect_broken_model_prints_table_and_one_error_line(tmp_path, capsys):
+    big, small = shapes.cube(2.0, 4), shapes.sphere(0.3, 2)
+    path = tmp_path / "nested.stl"
+    v, t, _ = shapes.combine(big, small)
+    trimesh.Trimesh(v, t, process=False).export(path)
+    assert main(["inspect", str(path)]) == 2
+    captured = capsys.readouterr()
+    assert "c1" in captured.out and "errors:" in captured.out
+    assert captured.err.count("\n") == 1 and "conductor 'c2' lies inside conductor 'c1'" in captured.err
+
+
+def test_default_demo_solves(capsys):
+    assert main(["demo", "-q"]) == 0
+    assert capsys.readouterr().out == ""

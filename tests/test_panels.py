@@ -96,3 +96,8 @@ def test_merge_vertices_joins_near_duplicates_only():
 def test_connected_components_numbered_by_lowest_triangle():
     t = np.array([[3, 4, 5], [0, 1, 2], [4, 5, 6], [1, 2, 7]])
     np.testing.assert_array_equal(connected_components(t), [0, 1, 0, 1])
+
+
+def test_rejects_absurd_coordinates_before_they_overflow():
+    with pytest.raises(MeshError, match=r"coordinates reach 2e\+200 m, beyond any real device"):
+        make_panels(RIGHT * 1e200, [[0, 1, 2]])

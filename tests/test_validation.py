@@ -80,7 +80,7 @@ def test_geometry_below_the_ground_plane():
 
 def test_absurd_size_suggests_the_unit():
     v, t = shapes.cube(2000.0, 2)  # a 2-km "package": the file was surely in mm
-    with pytest.raises(MeshError, match=r"the model is 3.46e\+03 m across in unit 'm' .* is it 'mm'\?"):
+    with pytest.raises(MeshError, match=r"the model is 3.46e\+03 m across in unit 'm'; that looks like a wrong unit: is it 'mm'\?"):
         Model.from_arrays(v, t, source="pkg.stl")
     with pytest.raises(MeshError, match="that looks like a wrong unit"):
         Model.from_arrays(*shapes.cube(1e-3, 2), unit="um")

@@ -16,8 +16,9 @@ from . import __version__
 from .errors import TrichargeError
 from .units import LENGTH_UNITS
 
-DEMO_MESH = "demo_header.msh"
-DEMO_UNIT = "mm"
+#: Built-in demos (our own invented scenarios), files in tricharge/data/ (links to meshes/).
+DEMOS = {"hv": "demo_hv.toml", "header": "demo_header.msh", "package": "demo_package.toml"}
+DEFAULT_DEMO = "hv"
 
 
 def _echo(text: str, quiet: bool) -> None:
@@ -92,12 +93,23 @@ def inspect(input_path: Path, unit: str | None):
 
 
 @cli.command()
+@click.argument("name", type=click.Choice(list(DEMOS)), default=DEFAULT_DEMO)
 @_json_option
 @_quiet_option
-def demo(json_path: Path | None, quiet: bool):
-    """Solve the built-in demo: a three-pin header over a shield plate (mm)."""
-    with resources.as_file(resources.files("tricharge") / "data" / DEMO_MESH) as path:
-        _solve_and_report(path, DEMO_UNIT, json_path, quiet)
+@click.option("--inspect", "inspect_only", is_flag=True, help="Show the model summary instead of solving.")
+def demo(name: str, json_path: Path | None, quiet: bool, inspect_only: bool):
+    """Solve a built-in demo NAME: hv (default), header or package.
+
+    \b
+    hv       a high-voltage rod with a grading ring facing a grounded disk, in air
+    header   a three-pin header over a shield plate, homogeneous medium
+    package  a four-lead package in mold compound over a ground plane
+    """
+    with resources.as_file(resources.files("tricharge") / "data" / DEMOS[name]) as path:
+        if inspect_only:
+            inspect.callback(path, None)
+        else:
+            _solve_and_report(path, "mm" if path.suffix == ".msh" else None, json_path, quiet)
 
 
 def main(argv: list[str] | None = None) -> int:

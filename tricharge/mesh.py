@@ -18,6 +18,9 @@ from .errors import MeshError
 #: equilateral triangle with the same longest edge (common practice, no source).
 DEGENERATE_AREA_FRACTION = 1e-10
 
+#: Coordinates beyond this many metres are refused before any arithmetic can overflow.
+MAX_COORDINATE = 1e9
+
 
 def validate_surface(vertices, triangles, *, source: str = "mesh") -> tuple[np.ndarray, np.ndarray]:
     """Check a triangle surface and return it as contiguous float64/int64 arrays.
@@ -50,9 +53,13 @@ def validate_surface(vertices, triangles, *, source: str = "mesh") -> tuple[np.n
         raise MeshError(
             f"{source}: triangle indices must lie in 0..{len(v) - 1}, found {t.min()}..{t.max()}; the file is inconsistent"
         )
-    bad = ~np.isfinite(v[np.unique(t)]).all(axis=1)
+    used = v[np.unique(t)]
+    bad = ~np.isfinite(used).all(axis=1)
     if bad.any():
         raise MeshError(f"{source}: {int(bad.sum())} vertices have NaN or infinite coordinates; repair the export")
+    if np.abs(used).max() > MAX_COORDINATE:
+        raise MeshError(f"{source}: coordinates reach {np.abs(used).max():.3g} m, beyond any real device; "
+                        "check the file and its unit")
     corners = v[t]
     edges = np.roll(corners, -1, axis=1) - corners
     longest = np.linalg.norm(edges, axis=2).max(axis=1)

@@ -16,7 +16,7 @@ import numpy as np
 
 from .mesh import (aspect_ratios, connected_components, edge_use, orient_consistently, pairs_within,
                    signed_volume, triangles_intersect, winding_numbers)
-from .units import metres_per
+from .units import format_eng, metres_per
 
 #: Aspect ratio (1 = equilateral) above which a triangle is reported as a needle.
 NEEDLE_WARNING = 20.0
@@ -131,7 +131,7 @@ def _summaries(model, parts, aspects, sizes, areas) -> list[PartSummary]:
         _, closed = _closed_pieces(model.triangles[idx])
         if kind == "conductor":
             detail = ("floating" if record.floating else
-                      f"{record.voltage:g} V" if record.voltage is not None else "")
+                      format_eng(record.voltage, "V") if record.voltage is not None else "")
             media = {model.medium_of_surface(s) for s in record.surfaces}
             detail = ", ".join(x for x in (detail, "in " + " + ".join(sorted(media))) if x)
         else:
@@ -247,8 +247,9 @@ def _check_ground_and_size(model, errors):
     if diagonal > hi or diagonal < lo:
         scale = metres_per(model.unit)
         guess = "mm" if diagonal > hi else "m"
-        errors.append(f"{model.source}: the model is {diagonal:.3g} m across in unit '{model.unit}' "
-                      f"({diagonal / scale:.3g} {model.unit}); that looks like a wrong unit: is it '{guess}'?")
+        in_unit = f" ({diagonal / scale:.3g} {model.unit})" if model.unit != "m" else ""
+        errors.append(f"{model.source}: the model is {diagonal:.3g} m across in unit '{model.unit}'{in_unit}; "
+                      f"that looks like a wrong unit: is it '{guess}'?")
     if model.ground_z is not None:
         below = used[:, 2] <= model.ground_z
         if below.any():

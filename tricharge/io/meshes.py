@@ -6,8 +6,9 @@ files into a :class:`SurfaceMesh` in one place: unit conversion, vertex merging 
 surface naming:
 
 * Gmsh physical surface groups keep their names (``group<tag>`` when unnamed; the tag
-  number also works as a reference); OBJ ``g``/``o`` names and a VTK cell-data region
-  array (``region<k>``, or ``k`` as a reference) likewise;
+  number also works as a reference); OBJ ``g``/``o`` names, the named ``solid`` blocks of
+  an ASCII STL, and a VTK cell-data region array (``region<k>``, or ``k`` as a reference)
+  likewise;
 * a file without groups read alone: each connected piece is a surface named
   ``c1, c2, ...`` in the order of each piece's lowest triangle index;
 * several files at once: a file without groups is one surface named after the file
@@ -185,6 +186,52 @@ def _read_trimesh(path: Path) -> RawSurface:
     return RawSurface(np.asarray(mesh.vertices, float), faces)
 
 
+def _read_stl(path: Path) -> RawSurface:
+    """STL, binary or ASCII. ASCII files with several named ``solid`` blocks give one
+    group per solid. Vertices are per facet here; merging happens later."""
+    data = path.read_bytes()
+    if len(data) >= 84:
+        count = int.from_bytes(data[80:84], "little")
+        if len(data) == 84 + 50 * count:
+            records = np.frombuffer(data, dtype=np.uint8, offset=84).reshape(count, 50)
+            xyz = records[:, 12:48].copy().view("<f4").reshape(count, 3, 3).astype(np.float64)
+            return RawSurface(xyz.reshape(-1, 3), np.arange(3 * count, dtype=np.int64).reshape(count, 3))
+        if not data.lstrip().startswith(b"solid"):
+            raise InputFileError(f"{path}: binary STL declares {count:,} triangles ({84 + 50 * count:,} bytes) but the "
+                                 f"file has {len(data):,} bytes; it is truncated or not an STL file")
+    try:
+        text = data.decode("ascii")
+    except UnicodeDecodeError:
+        raise InputFileError(f"{path}: neither a binary STL (size does not match its triangle count) nor an ASCII "
+                             "STL (not text); export it again") from None
+    vertices, solids, names = [], [], []
+    for number, line in enumerate(text.splitlines(), start=1):
+        parts = line.split()
+        if not parts:
+            continue
+        if parts[0] == "solid":
+            names.append(" ".join(parts[1:]) or f"solid{len(names) + 1}")
+        elif parts[0] == "vertex":
+            try:
+                vertices.append([float(x) for x in parts[1:4]])
+            except ValueError:
+                raise InputFileError(f"{path}: line {number} is not a valid STL vertex: {line.strip()[:60]!r}") from None
+            if len(vertices[-1]) != 3:
+                raise InputFileError(f"{path}: line {number}: a vertex needs three coordinates")
+            solids.append(max(len(names) - 1, 0))
+    if len(vertices) % 3:
+        raise InputFileError(f"{path}: {len(vertices)} vertices is not a whole number of triangles; the file is "
+                             "truncated")
+    if not vertices:
+        raise _no_triangles(path, "no facets found")
+    m = len(vertices) // 3
+    raw = RawSurface(np.array(vertices, float), np.arange(3 * m, dtype=np.int64).reshape(m, 3))
+    solid_of_triangle = np.array(solids[::3], dtype=np.int64)
+    if len(set(names)) > 1 and len(set(names)) == len(names):
+        raw.groups, raw.group_names = solid_of_triangle, names
+    return raw
+
+
 def _read_obj(path: Path) -> RawSurface:
     """Wavefront OBJ: ``v`` and ``f`` records (any polygon, ``v/vt/vn`` and negative
     indices), grouped by the latest ``g`` name, else the latest ``o`` name."""
@@ -240,7 +287,7 @@ class MeshFormat:
 #: Registry: add a format by appending one record.
 FORMATS: list[MeshFormat] = [
     MeshFormat("Gmsh", (".msh",), _read_gmsh),
-    MeshFormat("STL", (".stl",), _read_trimesh),
+    MeshFormat("STL", (".stl",), _read_stl),
     MeshFormat("Wavefront OBJ", (".obj",), _read_obj),
     MeshFormat("PLY", (".ply",), _read_trimesh),
     MeshFormat("VTK legacy", (".vtk",), partial(_read_vtk, module="vtk", kind="VTK")),
@@ -293,8 +340,9 @@ def _merged(points: np.ndarray, triangles: np.ndarray):
     """Merge duplicate vertices (tolerance relative to the size); unchanged if coordinates are not finite."""
     used = points[np.unique(triangles)] if triangles.size else points[:0]
     if used.size and np.isfinite(used).all():
-        diagonal = float(np.linalg.norm(np.ptp(used, axis=0)))
-        if diagonal > 0:
+        with np.errstate(over="ignore"):
+            diagonal = float(np.linalg.norm(np.ptp(used, axis=0)))
+        if 0 < diagonal < np.inf:
             return merge_vertices(points, triangles, MERGE_TOLERANCE * diagonal)
     return points, np.asarray(triangles, np.int64)
 

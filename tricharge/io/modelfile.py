@@ -164,6 +164,8 @@ def load_model_file(path, *, unit: str | None = None, check: bool = True) -> Mod
     if "mesh" not in data:
         raise ModelFileError(f"{path}: no 'mesh' key; add mesh = \"your_mesh.msh\" (or a list of files)")
     meshes = _string_list(path, "mesh", data["mesh"])
+    if not meshes:
+        raise ModelFileError(f"{path}: 'mesh' is an empty list; name at least one mesh file")
     file_unit = _expect(path, "unit", data.get("unit", unit or "m"), str, f"one of {', '.join(LENGTH_UNITS)}")
     if file_unit not in LENGTH_UNITS:
         raise ModelFileError(f"{path}: unit '{file_unit}' is unknown; use one of {', '.join(LENGTH_UNITS)}")
