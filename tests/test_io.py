@@ -131,3 +131,33 @@ def test_model_from_arrays_validates():
         Model.from_arrays(v, t, labels=np.r_[np.zeros(10), np.ones(len(t) - 10)], conductors=("a", "a"))
     with pytest.raises(MeshError, match="surfaces without triangles: b"):
         Model.from_arrays(v, t, labels=np.zeros(len(t)), conductors=("a", "b"))
+
+
+def test_vtk_legacy_polygons_and_ignored_volume_cells(tmp_path):
+    points = np.array([[0, 0, 0], [1, 0, 0], [1.5, 0.8, 0], [0.5, 1.3, 0], [-0.5, 0.8, 0], [0.5, 0.5, 1]], float)
+    mesh = meshio.Mesh(points, [("polygon", np.array([[0, 1, 2, 3, 4]])), ("tetra", np.array([[0, 1, 2, 5]]))])
+    path = tmp_path / "pentagon.vtk"
+    meshio.write(path, mesh, binary=False)
+    model = load(path)
+    assert model.n_panels == 3  # the pentagon fan-split, the tetrahedron ignored
+    assert any("ignored tetra cells" in note for note in model.notes)
+
+
+def test_several_files_one_surface_each(tmp_path):
+    from tricharge.io.meshes import read_mesh
+
+    for k, name in enumerate(("lead_a", "lead_b")):
+        trimesh.Trimesh(*shapes.cube(1.0, 2, center=(3.0 * k, 0, 0)), process=False).export(tmp_path / f"{name}.stl")
+    model = read_mesh([tmp_path / "lead_a.stl", tmp_path / "lead_b.stl"])
+    assert model.conductor_names == ("lead_a", "lead_b")
+
+
+def test_named_ascii_stl_solids_are_groups(tmp_path):
+    text = ""
+    for name, dx in (("gate", 0.0), ("drain", 3.0)):
+        v, t = shapes.cube(1.0, 2, center=(dx, 0, 0))
+        text += trimesh.exchange.stl.export_stl_ascii(trimesh.Trimesh(v, t, process=False)).replace(
+            "solid ", f"solid {name}", 1).replace("endsolid ", f"endsolid {name}", 1)
+    path = tmp_path / "two.stl"
+    path.write_text(text)
+    assert load(path).conductor_names == ("gate", "drain")

@@ -176,8 +176,8 @@ def test_same_matrix_from_every_format(tmp_path):
 def test_unit_option_equals_prescaled_coordinates(tmp_path):
     """The same mesh read with unit mm, and with coordinates pre-scaled to metres: identical."""
     v, t = shapes.cube(3.0, 4)  # millimetres
-    trimesh.Trimesh(v, t, process=False).export(tmp_path / "mm.stl")
-    trimesh.Trimesh(v * 1e-3, t, process=False).export(tmp_path / "m.stl")
-    in_mm = solve(load(tmp_path / "mm.stl", unit="mm")).capacitance
-    in_m = solve(load(tmp_path / "m.stl")).capacitance
-    np.testing.assert_allclose(in_mm, in_m, rtol=1e-6)  # STL stores float32 coordinates
+    for name, points in (("mm.msh", v), ("m.msh", v * 1e-3)):
+        meshio.write(tmp_path / name, meshio.Mesh(points, [("triangle", t)]), file_format="gmsh22", binary=False)
+    in_mm = solve(load(tmp_path / "mm.msh", unit="mm")).capacitance
+    in_m = solve(load(tmp_path / "m.msh")).capacitance
+    np.testing.assert_allclose(in_mm, in_m, rtol=1e-12)
