@@ -26,7 +26,34 @@ def _echo(text: str, quiet: bool) -> None:
         click.echo(text)
 
 
-def _solve_and_report(path: Path, unit: str | None, json_path: Path | None, quiet: bool) -> None:
+class _Progress:
+    """Progress bars on stderr for long solves; silent when quiet or not a terminal."""
+
+    def __init__(self, quiet: bool):
+        self.enabled = not quiet and sys.stderr.isatty()
+        self.bar, self.stage = None, None
+
+    def __call__(self, stage: str, done: int, total: int) -> None:
+        if not self.enabled:
+            return
+        from tqdm import tqdm
+
+        if stage != self.stage:
+            self.close()
+            self.stage = stage
+            unit = "it" if stage == "iterations" else "panels" if stage == "near field" else "step"
+            self.bar = tqdm(total=None if stage == "iterations" else total, desc=stage, unit=unit, leave=False,
+                            file=sys.stderr)
+        self.bar.update(done - self.bar.n)
+
+    def close(self) -> None:
+        if self.bar is not None:
+            self.bar.close()
+            self.bar = None
+
+
+def _solve_and_report(path: Path, unit: str | None, json_path: Path | None, quiet: bool, method: str = "auto",
+                      tol: float = 1e-6) -> None:
     from .io.export import check_writable, write_json
     from .io.modelfile import load
     from .io.text import plural, result_report
@@ -38,7 +65,11 @@ def _solve_and_report(path: Path, unit: str | None, json_path: Path | None, quie
     unit = model.unit
     _echo(f"read {path.name}: {plural(len(model.conductors), 'conductor')} ({', '.join(model.conductor_names)}), "
           f"{plural(model.n_panels, 'panel')}; solving ...", quiet)
-    result = solve(model)
+    progress = _Progress(quiet)
+    try:
+        result = solve(model, method=method, tol=tol, progress=progress)
+    finally:
+        progress.close()
     _echo(result_report(result, source=path.name, unit=unit, version=__version__), quiet)
     if json_path is not None:
         write_json(json_path, result, input_file=str(path), unit=unit, tricharge_version=__version__)
@@ -56,21 +87,29 @@ _unit_option = click.option("--unit", "unit", type=click.Choice(list(LENGTH_UNIT
 _json_option = click.option("--json", "json_path", type=click.Path(dir_okay=False, path_type=Path),
                             help="Also write the result as JSON to this file.")
 _quiet_option = click.option("--quiet", "-q", is_flag=True, help="Print nothing but errors.")
+_method_option = click.option("--method", type=click.Choice(["auto", "dense", "fast"]), default="auto",
+                              show_default=True,
+                              help="dense: stored matrix and LU (small models); fast: multipole and GMRES, memory "
+                                   "growing linearly; auto: dense up to 3,000 panels.")
+_tol_option = click.option("--tol", type=click.FloatRange(1e-12, 1e-2), default=1e-6, show_default=True,
+                           help="Relative residual of the iterative (fast) solve.")
 
 
 @cli.command()
 @click.argument("input_path", metavar="INPUT", type=click.Path(path_type=Path))
 @_unit_option
 @_json_option
+@_method_option
+@_tol_option
 @_quiet_option
-def solve(input_path: Path, unit: str | None, json_path: Path | None, quiet: bool):
+def solve(input_path: Path, unit: str | None, json_path: Path | None, method: str, tol: float, quiet: bool):
     """Capacitance matrix of the conductors in INPUT: a surface mesh (.msh .stl .obj .ply
     .vtk .vtu) or a model file (.toml) that says what the mesh surfaces are.
 
     In a bare mesh each Gmsh physical surface group is one conductor; without groups,
     each connected piece of surface is one, named c1, c2, ... .
     """
-    _solve_and_report(input_path, unit, json_path, quiet)
+    _solve_and_report(input_path, unit, json_path, quiet, method, tol)
 
 
 @cli.command()

@@ -260,29 +260,48 @@ def triangles_intersect(corners_a, corners_b) -> np.ndarray:
     return hit
 
 
-def pairs_within(targets, centers, radii) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """All (target i, center j) with ``|targets[i] - centers[j]| < radii[j]``.
+class PairFinder:
+    """Find (target, center) pairs closer than each center's own radius.
 
-    Centers are grouped by radius in powers of two, each group searched with its largest
-    radius, so strongly graded meshes do not pay for their biggest panel everywhere.
+    Centers are grouped by radius in powers of two and each group gets one k-d tree,
+    searched with its largest radius, so strongly graded meshes do not pay for their
+    biggest panel everywhere. Build once, query many times (in chunks of targets).
+
+    Parameters
+    ----------
+    centers : (n, 3) float
+    radii : (n,) float > 0
+    """
+
+    def __init__(self, centers, radii):
+        self.centers = np.asarray(centers, dtype=np.float64)
+        self.radii = np.asarray(radii, dtype=np.float64)
+        size_class = np.floor(np.log2(self.radii / self.radii.min())).astype(np.int64)
+        self.groups = []
+        for c in np.unique(size_class):
+            members = np.flatnonzero(size_class == c)
+            self.groups.append((members, cKDTree(self.centers[members]), float(self.radii[members].max())))
+
+    def query(self, targets) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Pairs for ``targets`` (m, 3): target index i (m,), center index j, distance, all (p,)."""
+        targets = np.asarray(targets, dtype=np.float64)
+        target_tree = cKDTree(targets)
+        found_i, found_j = [np.zeros(0, np.int64)], [np.zeros(0, np.int64)]
+        for members, tree, radius in self.groups:
+            hits = tree.sparse_distance_matrix(target_tree, radius, output_type="ndarray")
+            found_j.append(members[hits["i"]])
+            found_i.append(hits["j"].astype(np.int64))
+        i, j = np.concatenate(found_i), np.concatenate(found_j)
+        distance = np.linalg.norm(targets[i] - self.centers[j], axis=1)
+        keep = distance < self.radii[j]
+        return i[keep], j[keep], distance[keep]
+
+
+def pairs_within(targets, centers, radii) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """All (target i, center j) with ``|targets[i] - centers[j]| < radii[j]`` (see :class:`PairFinder`).
 
     Returns
     -------
     i : (p,) int64; j : (p,) int64; distance : (p,) float64
     """
-    targets = np.asarray(targets, dtype=np.float64)
-    centers = np.asarray(centers, dtype=np.float64)
-    radii = np.asarray(radii, dtype=np.float64)
-    target_tree = cKDTree(targets)
-    size_class = np.floor(np.log2(radii / radii.min())).astype(np.int64)
-    found_i, found_j = [np.zeros(0, np.int64)], [np.zeros(0, np.int64)]
-    for c in np.unique(size_class):
-        members = np.flatnonzero(size_class == c)
-        hits = cKDTree(centers[members]).sparse_distance_matrix(target_tree, radii[members].max(),
-                                                                output_type="ndarray")
-        found_j.append(members[hits["i"]])
-        found_i.append(hits["j"].astype(np.int64))
-    i, j = np.concatenate(found_i), np.concatenate(found_j)
-    distance = np.linalg.norm(targets[i] - centers[j], axis=1)
-    keep = distance < radii[j]
-    return i[keep], j[keep], distance[keep]
+    return PairFinder(centers, radii).query(targets)

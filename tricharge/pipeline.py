@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 from .bem.capacitance import Result, capacitance_matrix
-from .bem.operators import NearFieldPolicy
 from .bem.panels import make_panels
 from .errors import TrichargeError
 from .model import Model
@@ -33,8 +32,12 @@ def _homogeneous_permittivity(model: Model) -> float:
     return model.permittivity(model.medium_of_surface(first))
 
 
-def solve(model: Model, *, policy: NearFieldPolicy | None = None) -> Result:
+def solve(model: Model, *, method: str = "auto", tol: float = 1e-6, progress=None) -> Result:
     """Capacitance matrix of the model's conductors (Maxwell form, farads).
+
+    ``method`` is "auto" (dense up to a few thousand panels, fast above), "dense" or
+    "fast"; ``tol`` the relative residual of the iterative solve; ``progress(stage, done,
+    total)`` is called during long work (see :func:`~tricharge.bem.capacitance.capacitance_matrix`).
 
     >>> import tricharge
     >>> from tricharge import shapes
@@ -45,4 +48,5 @@ def solve(model: Model, *, policy: NearFieldPolicy | None = None) -> Result:
     """
     eps_r = _homogeneous_permittivity(model)
     panels = make_panels(model.vertices, model.triangles, source=model.source)
-    return capacitance_matrix(panels, model.conductor_labels, model.conductor_names, eps_r=eps_r, policy=policy)
+    return capacitance_matrix(panels, model.conductor_labels, model.conductor_names, eps_r=eps_r, method=method,
+                              tol=tol, progress=progress)

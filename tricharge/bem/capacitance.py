@@ -14,7 +14,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .operators import DenseSingleLayer, NearFieldPolicy
+from .operators import make_operator
+from .preconditioners import LocalInverse
 from .panels import Panels
 from .solvers import solve_linear
 
@@ -111,7 +112,7 @@ class Result:
     n_panels : N
     solve_time : seconds, assembly plus solve
     checks : MatrixChecks of the raw matrix
-    method : operator used ("dense")
+    method : operator used ("dense" or "fast")
     converged, iterations, residual : from the linear solve
     """
 
@@ -162,8 +163,8 @@ class Result:
         }
 
 
-def capacitance_matrix(panels: Panels, labels, names, *, eps_r: float = 1.0,
-                       policy: NearFieldPolicy | None = None) -> Result:
+def capacitance_matrix(panels: Panels, labels, names, *, eps_r: float = 1.0, method: str = "auto",
+                       tol: float = 1e-6, progress=None) -> Result:
     """Maxwell capacitance matrix of conductors in a homogeneous medium.
 
     Parameters
@@ -172,7 +173,10 @@ def capacitance_matrix(panels: Panels, labels, names, *, eps_r: float = 1.0,
     labels : (N,) int, conductor index 0..K-1 of each panel
     names : K conductor names
     eps_r : relative permittivity of the surrounding medium
-    policy : near-field integration policy (default is accurate to ~1e-4 per entry)
+    method : "dense" (stored matrix, LU), "fast" (multipole, GMRES) or "auto" (by N)
+    tol : relative residual asked of the iterative solve (fast path)
+    progress : optional ``progress(stage, done, total)``; stages "near field",
+        "preconditioner" and "iterations" (done = iteration, total = the cap)
 
     Returns
     -------
@@ -183,11 +187,19 @@ def capacitance_matrix(panels: Panels, labels, names, *, eps_r: float = 1.0,
     k = len(names)
     if labels.shape != (len(panels),) or labels.min() < 0 or labels.max() >= k:
         raise ValueError(f"labels must be ({len(panels)},) integers in 0..{k - 1}")
+    report = progress or (lambda stage, done, total: None)
     t0 = time.perf_counter()
-    operator = DenseSingleLayer(panels, policy)
+    operator = make_operator(panels, method, tol=tol, progress=lambda done, total: report("near field", done, total))
+    preconditioner = None
+    if operator.method == "fast":
+        report("preconditioner", 0, 1)
+        preconditioner = LocalInverse(operator)
+        report("preconditioner", 1, 1)
     t1 = time.perf_counter()
     rhs = (labels[:, None] == np.arange(k)[None, :]).astype(float)  # 1 V on one conductor per column
-    solution = solve_linear(operator, rhs)
+    maxiter = 20
+    solution = solve_linear(operator, rhs, tol=tol, preconditioner=preconditioner, restart=50, maxiter=maxiter,
+                            callback=lambda it, res: report("iterations", it, 50 * maxiter))
     t2 = time.perf_counter()
     sigma = solution.x * (FOUR_PI_EPS0 * eps_r)
     raw = maxwell_from_charges(sigma, panels.areas, labels, k)

@@ -42,11 +42,9 @@ def _evaluate(points, panels, sigma, policy, kind):
     policy = policy or NearFieldPolicy()
     qp, qw = panels.quadrature(policy.far_degree)
     total = _far_sum(points, qp.reshape(-1, 3), (sigma[:, None] * qw).ravel(), kind)
-    i, j, rel = near_pairs(points, panels, policy.near_within)
+    i, j, rel = near_pairs(points, panels, policy.corrected_within)
     if len(i):
-        with np.errstate(divide="ignore", invalid="ignore"):
-            far = far_rule_pairs(points[i], panels, j, policy, kind)
-        far = np.where(np.isfinite(far), far, 0.0)  # coincident points were skipped in _far_sum too
+        far = far_rule_pairs(points[i], panels, j, policy, kind)
         exact = pair_integrals(points[i], panels, j, rel, policy, kind)
         weight = sigma[j] if kind == "potential" else sigma[j, None]
         np.add.at(total, i, weight * (exact - far))

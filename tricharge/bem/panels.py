@@ -119,7 +119,7 @@ class Panels:
             raise ValueError(f"quadrature degree {degree} not available; choose one of {sorted(QUADRATURE_RULES)}")
         if degree not in self._quadrature_cache:
             bary, w = QUADRATURE_RULES[degree]
-            points = np.einsum("qk,mkd->mqd", bary, self.corners)
+            points = self.centroids[:, None, :] if degree == 1 else np.einsum("qk,mkd->mqd", bary, self.corners)
             self._quadrature_cache[degree] = (points, self.areas[:, None] * w[None, :])
         return self._quadrature_cache[degree]
 

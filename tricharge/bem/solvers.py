@@ -2,7 +2,7 @@
 
 A stored matrix (``operator.matrix``) is factorised once by LU and reused for every
 column of ``b``. Any other :class:`~scipy.sparse.linalg.LinearOperator` goes to
-restarted GMRES, column by column, with an optional preconditioner. Non-convergence is
+restarted GMRES with all columns in lockstep and an optional preconditioner. Non-convergence is
 never silent: it raises :class:`~tricharge.errors.SolverError` carrying the partial
 solution, unless the caller passes ``raise_on_failure=False``.
 """
@@ -14,7 +14,7 @@ from dataclasses import dataclass
 
 import numpy as np
 import scipy.linalg
-from scipy.sparse.linalg import LinearOperator, gmres
+from scipy.sparse.linalg import LinearOperator
 
 from ..errors import SolverError
 
@@ -57,25 +57,89 @@ def _solve_lu(matrix: np.ndarray, b: np.ndarray) -> np.ndarray:
     return scipy.linalg.lu_solve(lu, b, check_finite=False)
 
 
-def _solve_gmres(operator, b, tol, maxiter, preconditioner, restart):
-    x = np.zeros_like(b)
-    iterations = np.zeros(b.shape[1], dtype=int)
-    for k in range(b.shape[1]):
-        count = 0
+def gmres(operator, b, *, tol: float = 1e-8, restart: int = 50, maxiter: int = 200, preconditioner=None,
+          callback=None):
+    """Restarted GMRES for K right-hand sides in lockstep, right-preconditioned.
 
-        def _count(_):
-            nonlocal count
+    Each column has its own Krylov space, but every iteration applies the operator to all
+    unconverged columns at once (one multipole pass for K densities is much cheaper than
+    K passes). The residual monitored is the true one of ``A x = b`` (right
+    preconditioning leaves it unchanged).
+
+    Parameters
+    ----------
+    operator : LinearOperator (N, N)
+    b : (N, K)
+    tol : relative residual asked of every column
+    restart : Krylov vectors per cycle
+    maxiter : restart cycles at most
+    preconditioner : LinearOperator approximating the inverse, or None
+    callback : ``callback(iteration, residuals (K,))`` after every iteration
+
+    Returns
+    -------
+    x : (N, K); iterations : (K,) int, inner iterations per column
+    """
+    apply_m = (lambda v: v) if preconditioner is None else preconditioner.matmat
+    n, k = b.shape
+    x = np.zeros((n, k))
+    norms = np.linalg.norm(b, axis=0)
+    norms[norms == 0] = 1.0
+    iterations = np.zeros(k, dtype=int)
+    residuals = np.ones(k)
+    count = 0
+    for _ in range(maxiter):
+        r = b - operator.matmat(x)
+        beta = np.linalg.norm(r, axis=0)
+        residuals = beta / norms
+        active = np.flatnonzero(residuals > tol)
+        if not len(active):
+            break
+        ka = len(active)
+        basis = np.zeros((restart + 1, n, ka))
+        basis[0] = r[:, active] / beta[active]
+        h = np.zeros((ka, restart + 1, restart))
+        g = np.zeros((ka, restart + 1))
+        g[:, 0] = beta[active]
+        cs, sn = np.zeros((ka, restart)), np.zeros((ka, restart))
+        for j in range(restart):
+            w = operator.matmat(apply_m(basis[j]))
+            for i in range(j + 1):  # modified Gram-Schmidt
+                hij = np.einsum("nk,nk->k", basis[i], w)
+                w -= basis[i] * hij
+                h[:, i, j] = hij
+            h[:, j + 1, j] = np.linalg.norm(w, axis=0)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                basis[j + 1] = np.where(h[:, j + 1, j] > 0, w / h[:, j + 1, j], 0.0)
+            for i in range(j):  # previous Givens rotations on the new column
+                hi, hi1 = h[:, i, j].copy(), h[:, i + 1, j].copy()
+                h[:, i, j] = cs[:, i] * hi + sn[:, i] * hi1
+                h[:, i + 1, j] = -sn[:, i] * hi + cs[:, i] * hi1
+            rho = np.hypot(h[:, j, j], h[:, j + 1, j])
+            rho[rho == 0] = 1.0
+            cs[:, j], sn[:, j] = h[:, j, j] / rho, h[:, j + 1, j] / rho
+            h[:, j, j], h[:, j + 1, j] = rho, 0.0
+            g[:, j + 1] = -sn[:, j] * g[:, j]
+            g[:, j] = cs[:, j] * g[:, j]
+            iterations[active] += 1
             count += 1
-
-        x[:, k], _ = gmres(operator, b[:, k], rtol=tol, atol=0.0, restart=restart, maxiter=maxiter,
-                           M=preconditioner, callback=_count, callback_type="pr_norm")
-        iterations[k] = count
-    return x, int(iterations.max())
+            residuals[active] = np.abs(g[:, j + 1]) / norms[active]
+            if callback is not None:
+                callback(count, residuals.copy())
+            if np.all(residuals[active] <= tol):
+                break
+        m = j + 1
+        update = np.zeros((n, ka))
+        for c in range(ka):
+            y = scipy.linalg.solve_triangular(h[c, :m, :m], g[c, :m])
+            update[:, c] = basis[:m, :, c].T @ y
+        x[:, active] += apply_m(update)
+    return x, iterations
 
 
 def solve_linear(operator: LinearOperator, b, *, tol: float = 1e-8, maxiter: int = 200,
                  preconditioner: LinearOperator | None = None, restart: int = 50,
-                 raise_on_failure: bool = True) -> LinearSolution:
+                 raise_on_failure: bool = True, callback=None) -> LinearSolution:
     """Solve ``operator @ x = b``.
 
     Parameters
@@ -86,6 +150,7 @@ def solve_linear(operator: LinearOperator, b, *, tol: float = 1e-8, maxiter: int
     maxiter : GMRES restart cycles
     preconditioner : approximate inverse for GMRES (ignored by LU)
     raise_on_failure : raise :class:`SolverError` when GMRES misses ``tol``
+    callback : ``callback(iteration, residuals)`` after every GMRES iteration
 
     Returns
     -------
@@ -98,15 +163,17 @@ def solve_linear(operator: LinearOperator, b, *, tol: float = 1e-8, maxiter: int
     if hasattr(operator, "matrix"):
         x, method, iterations = _solve_lu(operator.matrix, b), "lu", 0
     else:
-        x, iterations = _solve_gmres(operator, b, tol, maxiter, preconditioner, restart)
-        method = "gmres"
+        x, per_column = gmres(operator, b, tol=tol, restart=restart, maxiter=maxiter,
+                              preconditioner=preconditioner, callback=callback)
+        method, iterations = "gmres", int(per_column.max())
     residual = relative_residual(operator, x, b)
     converged = bool(np.isfinite(residual) and residual <= max(tol, 1e-10) * 10)
     solution = LinearSolution(x, method, converged, iterations, residual)
     if not converged and raise_on_failure:
         err = SolverError(
             f"{method} did not reach the tolerance {tol:g}: relative residual {residual:.2e} after {iterations}"
-            " iterations; refine needle-shaped panels, check for overlapping surfaces, or raise the iteration limit"
+            " iterations; refine needle-shaped panels, check for nearly touching surfaces, or loosen the tolerance"
+            " (it sets how exactly the charges satisfy the boundary conditions)"
         )
         err.partial = solution
         raise err

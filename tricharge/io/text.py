@@ -70,9 +70,10 @@ def plural(count: int, noun: str) -> str:
 def result_report(result, *, source: str, unit: str, version: str) -> str:
     """The full text the ``solve`` command prints."""
     names = list(result.conductors)
+    how = (f"fast solve ({result.iterations} GMRES iterations, residual {result.residual:.1e})"
+           if result.method == "fast" else "dense solve")
     head = (f"tricharge {version}: {source} (unit {unit}), {plural(len(names), 'conductor')}, "
-            f"{plural(result.n_panels, 'panel')}, "
-            f"{result.method} solve in {result.solve_time:.2f} s")
+            f"{plural(result.n_panels, 'panel')}, {how} in {result.solve_time:.2f} s")
     return "\n\n".join([
         head,
         "Capacitance matrix, Maxwell form (Q = C V):\n" + matrix_table(names, result.capacitance),
