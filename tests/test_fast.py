@@ -157,7 +157,7 @@ def test_cli_method_in_json_and_interrupt_leaves_nothing(tmp_path, monkeypatch, 
     def interrupted(*args, **kwargs):
         raise KeyboardInterrupt
 
-    monkeypatch.setattr(pipeline, "capacitance_matrix", interrupted)
+    monkeypatch.setattr(pipeline, "solve_capacitance", interrupted)
     fresh = tmp_path / "new.json"
     assert main(["solve", str(path), "--json", str(fresh)]) == 130
     assert "interrupted; no output was written" in capsys.readouterr().err

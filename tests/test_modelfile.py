@@ -11,7 +11,6 @@ from tricharge import load, shapes, solve
 from tricharge.cli import main
 from tricharge.errors import TrichargeError
 from tricharge.io.modelfile import ModelFileError
-from tricharge.pipeline import NotSolvableYet
 
 
 def _two_bodies():
@@ -91,10 +90,12 @@ def test_homogeneous_medium_scales_the_capacitance(tmp_path):
     np.testing.assert_allclose(oil.capacitance, 2.2 * plain.capacitance, rtol=1e-12)
 
 
-def test_features_not_solved_yet_are_refused_not_approximated(tmp_path):
+def test_full_model_solves_with_plane_and_floating_conductor(tmp_path):
     _write_msh(tmp_path / "parts.msh")
-    with pytest.raises(NotSolvableYet, match="a ground plane; floating conductors \\(case\\)"):
-        solve(load(_write(tmp_path, FULL)))
+    result = solve(load(_write(tmp_path, FULL)))
+    assert result.conductors == ("hv",) and result.floating == ("case",)
+    assert result.reference == "ground plane" and result.to_dict()["reference"] == "ground plane"
+    assert result.capacitance[0, 0] > 0
 
 
 def test_one_file_per_conductor(tmp_path):

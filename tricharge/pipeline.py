@@ -2,34 +2,28 @@
 
 from __future__ import annotations
 
-from .bem.capacitance import Result, capacitance_matrix
+import numpy as np
+
+from .bem.capacitance import Result, solve_capacitance
 from .bem.panels import make_panels
-from .errors import TrichargeError
+from .bem.system import Problem
 from .model import Model
 
 
-class NotSolvableYet(TrichargeError, NotImplementedError):
-    """The model uses a feature the solver does not handle yet; nothing is approximated."""
-
-
-def _homogeneous_permittivity(model: Model) -> float:
-    """The one relative permittivity around all conductors, or NotSolvableYet."""
-    missing = []
-    if model.interfaces:
-        missing.append(f"dielectric interfaces ({', '.join(i.name for i in model.interfaces)})")
-    if len({model.medium_of_surface(s) for c in model.conductors for s in c.surfaces}) > 1:
-        missing.append("conductors touching different media")
-    if model.ground_z is not None:
-        missing.append("a ground plane")
-    floating = [c.name for c in model.conductors if c.floating]
-    if floating:
-        missing.append(f"floating conductors ({', '.join(floating)})")
-    if missing:
-        raise NotSolvableYet(f"{model.source}: this version solves conductors in one homogeneous medium only; "
-                             f"the model has {'; '.join(missing)}, which are planned. Use 'tricharge inspect' to "
-                             "check the model meanwhile")
-    first = model.conductors[0].surfaces[0]
-    return model.permittivity(model.medium_of_surface(first))
+def problem_of(model: Model) -> Problem:
+    """The numerical problem of a model: every panel's role, permittivities, plane."""
+    panels = make_panels(model.vertices, model.triangles, source=model.source)
+    conductor = model.conductor_labels
+    permittivity = np.ones(model.n_panels)
+    contrast = np.zeros(model.n_panels)
+    surface_eps = np.array([model.permittivity(model.medium_of_surface(s)) for s in model.surfaces])
+    on_conductor = conductor >= 0
+    permittivity[on_conductor] = surface_eps[model.surface_index[on_conductor]]
+    for k, interface in enumerate(model.interfaces):
+        outside, inside = model.permittivity(interface.outside), model.permittivity(interface.inside)
+        contrast[model.interface_labels == k] = (outside - inside) / (outside + inside)
+    floating = np.array([c.floating for c in model.conductors], dtype=bool)
+    return Problem(panels, conductor, permittivity, contrast, floating, model.ground_z, model.conductor_names)
 
 
 def solve(model: Model, *, method: str = "auto", tol: float = 1e-6, progress=None) -> Result:
@@ -37,7 +31,9 @@ def solve(model: Model, *, method: str = "auto", tol: float = 1e-6, progress=Non
 
     ``method`` is "auto" (dense up to a few thousand panels, fast above), "dense" or
     "fast"; ``tol`` the relative residual of the iterative solve; ``progress(stage, done,
-    total)`` is called during long work (see :func:`~tricharge.bem.capacitance.capacitance_matrix`).
+    total)`` is called during long work (see :func:`~tricharge.bem.capacitance.solve_capacitance`).
+    Floating conductors carry zero net charge and are left out of the matrix; with a
+    ground plane the plane is the reference of the mutual form.
 
     >>> import tricharge
     >>> from tricharge import shapes
@@ -46,7 +42,4 @@ def solve(model: Model, *, method: str = "auto", tol: float = 1e-6, progress=Non
     >>> round(float(result.capacitance[0, 0]) * 1e12, 1)  # 4 pi eps0 x 1 m = 111.3 pF; 320 panels
     109.8
     """
-    eps_r = _homogeneous_permittivity(model)
-    panels = make_panels(model.vertices, model.triangles, source=model.source)
-    return capacitance_matrix(panels, model.conductor_labels, model.conductor_names, eps_r=eps_r, method=method,
-                              tol=tol, progress=progress)
+    return solve_capacitance(problem_of(model), method=method, tol=tol, progress=progress)

@@ -14,10 +14,12 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ..errors import SolverError
 from .operators import make_operator
-from .preconditioners import LocalInverse
 from .panels import Panels
+from .preconditioners import LocalInverse
 from .solvers import solve_linear
+from .system import Problem, assemble_system
 
 #: Vacuum permittivity, F/m (CODATA 2018).
 EPS0 = 8.8541878128e-12
@@ -92,11 +94,12 @@ def maxwell_from_charges(sigma: np.ndarray, areas: np.ndarray, labels: np.ndarra
     ----------
     sigma : (N, K) C/m^2, charge density for unit voltage on conductor k
     areas : (N,) m^2
-    labels : (N,) conductor index of each panel, 0..K-1
+    labels : (N,) conductor index of each panel, 0..K-1; -1 panels are left out
     """
     charges = sigma * areas[:, None]
     out = np.zeros((n_conductors, sigma.shape[1]))
-    np.add.at(out, labels, charges)
+    keep = labels >= 0
+    np.add.at(out, labels[keep], charges[keep])
     return out
 
 
@@ -106,8 +109,12 @@ class Result:
 
     conductors : names, in matrix order
     capacitance : (K, K) farads, Maxwell form, symmetric part of the raw matrix
-    sigma : (N, K) C/m^2, surface charge density on each panel for 1 V on conductor k
-    labels : (N,) conductor index of each panel
+    sigma : (N, K) C/m^2, total (free plus bound) surface charge density on each panel
+        for 1 V on conductor k and 0 V on the others
+    labels : (N,) index into ``conductors`` of each panel; -1 on interface panels and
+        floating conductors
+    reference : "infinity" or "ground plane": what the to-reference capacitors connect to
+    floating : names of floating conductors, eliminated from the matrix
     panel_areas : (N,) m^2
     n_panels : N
     solve_time : seconds, assembly plus solve
@@ -129,6 +136,8 @@ class Result:
     iterations: int
     residual: float
     timings: dict = field(default_factory=dict)
+    reference: str = "infinity"
+    floating: tuple[str, ...] = ()
 
     @property
     def mutual(self) -> np.ndarray:
@@ -137,7 +146,7 @@ class Result:
 
     @property
     def panel_charges(self) -> np.ndarray:
-        """(N, K) coulombs per volt: charge on each panel for 1 V on conductor k."""
+        """(N, K) coulombs per volt: total charge on each panel for 1 V on conductor k."""
         return self.sigma * self.panel_areas[:, None]
 
     def __repr__(self) -> str:
@@ -151,7 +160,8 @@ class Result:
             "capacitance_matrix": self.capacitance.tolist(),
             "capacitance_unit": "F",
             "mutual_matrix": self.mutual.tolist(),
-            "reference": "infinity",
+            "reference": self.reference,
+            "floating_conductors": list(self.floating),
             "panels": int(self.n_panels),
             "method": self.method,
             "converged": self.converged,
@@ -173,39 +183,100 @@ def capacitance_matrix(panels: Panels, labels, names, *, eps_r: float = 1.0, met
     labels : (N,) int, conductor index 0..K-1 of each panel
     names : K conductor names
     eps_r : relative permittivity of the surrounding medium
-    method : "dense" (stored matrix, LU), "fast" (multipole, GMRES) or "auto" (by N)
-    tol : relative residual asked of the iterative solve (fast path)
-    progress : optional ``progress(stage, done, total)``; stages "near field",
-        "preconditioner" and "iterations" (done = iteration, total = the cap)
+    method, tol, progress : see :func:`solve_capacitance`
 
     Returns
     -------
     Result with the capacitance in farads.
     """
     labels = np.asarray(labels, dtype=np.int64)
-    names = tuple(names)
     k = len(names)
     if labels.shape != (len(panels),) or labels.min() < 0 or labels.max() >= k:
         raise ValueError(f"labels must be ({len(panels)},) integers in 0..{k - 1}")
+    problem = Problem(panels, labels, np.full(len(panels), float(eps_r)), np.zeros(len(panels)),
+                      np.zeros(k, bool), None, tuple(names))
+    return solve_capacitance(problem, method=method, tol=tol, progress=progress)
+
+
+def solve_capacitance(problem: Problem, *, method: str = "auto", tol: float = 1e-6, progress=None) -> Result:
+    """Maxwell capacitance matrix among the non-floating conductors of a problem.
+
+    Parameters
+    ----------
+    problem : panels and what each one is (see :class:`~tricharge.bem.system.Problem`)
+    method : "dense" (stored matrix, LU), "fast" (multipole, GMRES) or "auto" (by N).
+        Dielectric interfaces, a ground plane and floating conductors are solved densely.
+    tol : relative residual asked of the iterative solve (fast path)
+    progress : optional ``progress(stage, done, total)``; stages "near field",
+        "preconditioner" and "iterations" (done = iteration, total = the cap)
+
+    Returns
+    -------
+    Result with the capacitance in farads (floating conductors at zero net charge).
+    """
+    panels = problem.panels
     report = progress or (lambda stage, done, total: None)
+    driven = np.flatnonzero(~problem.floating)
+    if not len(driven):
+        raise SolverError("every conductor is floating: at least one needs a potential to define a capacitance")
     t0 = time.perf_counter()
-    operator = make_operator(panels, method, tol=tol, progress=lambda done, total: report("near field", done, total))
+    if problem.is_simple:
+        operator = make_operator(panels, method, tol=tol,
+                                 progress=lambda done, total: report("near field", done, total))
+    else:
+        operator = _general_operator(problem, method)
     preconditioner = None
     if operator.method == "fast":
         report("preconditioner", 0, 1)
         preconditioner = LocalInverse(operator)
         report("preconditioner", 1, 1)
     t1 = time.perf_counter()
-    rhs = (labels[:, None] == np.arange(k)[None, :]).astype(float)  # 1 V on one conductor per column
+    n = len(panels)
+    rhs = np.zeros((operator.shape[0], len(driven)))
+    rhs[:n] = problem.conductor[:, None] == driven[None, :]  # 1 V on one conductor per column
     maxiter = 20
     solution = solve_linear(operator, rhs, tol=tol, preconditioner=preconditioner, restart=50, maxiter=maxiter,
                             callback=lambda it, res: report("iterations", it, 50 * maxiter))
     t2 = time.perf_counter()
-    sigma = solution.x * (FOUR_PI_EPS0 * eps_r)
-    raw = maxwell_from_charges(sigma, panels.areas, labels, k)
+    sigma = solution.x[:n] * FOUR_PI_EPS0
+    labels = np.full(n, -1, dtype=np.int64)
+    labels[np.isin(problem.conductor, driven)] = np.searchsorted(driven, problem.conductor[np.isin(problem.conductor,
+                                                                                                    driven)])
+    free = sigma * np.where(problem.is_conductor_panel, problem.permittivity, 0.0)[:, None]
+    raw = maxwell_from_charges(free, panels.areas, labels, len(driven))
+    names = tuple(problem.names[k] for k in driven)
     return Result(
         conductors=names, capacitance=0.5 * (raw + raw.T), sigma=sigma, labels=labels,
-        panel_areas=panels.areas, n_panels=len(panels), solve_time=t2 - t0, checks=check_matrix(raw, list(names)),
+        panel_areas=panels.areas, n_panels=n, solve_time=t2 - t0, checks=check_matrix(raw, list(names)),
         method=operator.method, converged=solution.converged, iterations=solution.iterations,
         residual=solution.residual, timings={"assembly": t1 - t0, "solve": t2 - t1},
+        reference="ground plane" if problem.ground_z is not None else "infinity",
+        floating=tuple(problem.names[k] for k in problem.floating_index),
     )
+
+
+#: Largest problem with interfaces, a ground plane or floating conductors solved densely.
+DENSE_GENERAL_LIMIT = 15_000
+
+
+class _StoredSystem:
+    """The assembled general system, solved by LU (``matrix`` attribute, LinearOperator-like)."""
+
+    method = "dense"
+
+    def __init__(self, matrix):
+        self.matrix = matrix
+        self.shape = matrix.shape
+
+    def matmat(self, x):
+        return self.matrix @ x
+
+
+def _general_operator(problem: Problem, method: str):
+    n = len(problem.panels)
+    if method == "fast" or (method == "auto" and n > DENSE_GENERAL_LIMIT):
+        raise SolverError(
+            f"{n:,} panels with dielectric interfaces, a ground plane or floating conductors: this version solves "
+            f"those with the dense method only (up to {DENSE_GENERAL_LIMIT:,} panels); coarsen the mesh or use "
+            "--method dense")
+    return _StoredSystem(assemble_system(problem))

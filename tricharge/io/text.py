@@ -70,14 +70,16 @@ def plural(count: int, noun: str) -> str:
 def result_report(result, *, source: str, unit: str, version: str) -> str:
     """The full text the ``solve`` command prints."""
     names = list(result.conductors)
+    floating = f"; floating, at zero net charge: {', '.join(result.floating)}" if result.floating else ""
     how = (f"fast solve ({result.iterations} GMRES iterations, residual {result.residual:.1e})"
            if result.method == "fast" else "dense solve")
     head = (f"tricharge {version}: {source} (unit {unit}), {plural(len(names), 'conductor')}, "
-            f"{plural(result.n_panels, 'panel')}, {how} in {result.solve_time:.2f} s")
+            f"{plural(result.n_panels, 'panel')}, {how} in {result.solve_time:.2f} s{floating}")
     return "\n\n".join([
         head,
         "Capacitance matrix, Maxwell form (Q = C V):\n" + matrix_table(names, result.capacitance),
-        "Mutual form (the capacitors of a SPICE netlist):\n" + mutual_list(names, result.mutual),
+        "Mutual form (the capacitors of a SPICE netlist):\n"
+        + mutual_list(names, result.mutual, "ground" if result.reference == "ground plane" else "infinity"),
         "Checks:\n" + checks_text(result.checks),
         "Discretisation error is not estimated yet: refine the mesh and compare to judge it.",
     ])
