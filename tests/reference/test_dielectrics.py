@@ -10,7 +10,6 @@ from tricharge import shapes
 from tricharge.bem.capacitance import EPS0, FOUR_PI_EPS0, solve_capacitance
 from tricharge.bem.fields import potential_at
 from tricharge.bem.system import problem_from_arrays
-from tricharge.mesh import merge_vertices
 
 
 def _shell_problem(a, b, eps_shell, fa=10, fb=12):
@@ -47,10 +46,7 @@ def test_floating_shell_around_a_sphere():
     """Sphere a inside a floating thick shell (inner radius b, outer c):
     C = 4 pi eps0 / (1/a - 1/b + 1/c), exact (Gauss's law). Within 1 %."""
     a, b, c = 1.0, 1.5, 2.0
-    inner = shapes.sphere(b, 12)
-    shell = shapes.combine(shapes.sphere(c, 12), (inner[0], inner[1][:, ::-1]))[:2]
-    v, t, labels = shapes.combine(shapes.sphere(a, 10), shell)
-    problem = problem_from_arrays(v, t, labels, floating=[False, True], names=("core", "shell"))
+    problem = _floating_shell_problem()
     result = solve_capacitance(problem, method="dense")
     assert result.conductors == ("core",) and result.floating == ("shell",)
     assert result.capacitance[0, 0] == pytest.approx(FOUR_PI_EPS0 / (1 / a - 1 / b + 1 / c), rel=0.01)
@@ -82,3 +78,26 @@ def test_sphere_above_a_grounded_plane(gap):
     result = solve_capacitance(problem, method="dense")
     assert result.reference == "ground plane"
     assert result.capacitance[0, 0] == pytest.approx(sphere_over_plane(radius, height), rel=0.01)
+
+
+def _floating_shell_problem():
+    inner = shapes.sphere(1.5, 12)
+    shell = shapes.combine(shapes.sphere(2.0, 12), (inner[0], inner[1][:, ::-1]))[:2]
+    v, t, labels = shapes.combine(shapes.sphere(1.0, 10), shell)
+    return problem_from_arrays(v, t, labels, floating=[False, True], names=("core", "shell"))
+
+
+@pytest.mark.parametrize("case", ["dielectric shell", "floating shell", "sphere over plane"])
+def test_fast_and_dense_agree(case):
+    """The matrix-free path reproduces the stored one within 1e-4 relative."""
+    if case == "dielectric shell":
+        problem = _shell_problem(1.0, 2.0, 4.0, 8, 12)
+    elif case == "floating shell":
+        problem = _floating_shell_problem()
+    else:
+        v, t = shapes.sphere(1.0, 16, center=(0.0, 0.0, 1.1))
+        problem = problem_from_arrays(v, t, np.zeros(len(t), np.int64), ground_z=0.0)
+    dense = solve_capacitance(problem, method="dense")
+    fast = solve_capacitance(problem, method="fast", tol=1e-7)
+    assert fast.method == "fast" and fast.converged
+    np.testing.assert_allclose(fast.capacitance, dense.capacitance, rtol=1e-4)

@@ -15,11 +15,11 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..errors import SolverError
-from .operators import make_operator
+from .operators import AUTO_DENSE_LIMIT, make_operator
 from .panels import Panels
-from .preconditioners import LocalInverse
+from .preconditioners import LocalInverse, SystemPreconditioner
 from .solvers import solve_linear
-from .system import Problem, assemble_system
+from .system import FastSystem, Problem, assemble_system
 
 #: Vacuum permittivity, F/m (CODATA 2018).
 EPS0 = 8.8541878128e-12
@@ -204,8 +204,7 @@ def solve_capacitance(problem: Problem, *, method: str = "auto", tol: float = 1e
     Parameters
     ----------
     problem : panels and what each one is (see :class:`~tricharge.bem.system.Problem`)
-    method : "dense" (stored matrix, LU), "fast" (multipole, GMRES) or "auto" (by N).
-        Dielectric interfaces, a ground plane and floating conductors are solved densely.
+    method : "dense" (stored matrix, LU), "fast" (multipole, GMRES) or "auto" (by N)
     tol : relative residual asked of the iterative solve (fast path)
     progress : optional ``progress(stage, done, total)``; stages "near field",
         "preconditioner" and "iterations" (done = iteration, total = the cap)
@@ -224,11 +223,11 @@ def solve_capacitance(problem: Problem, *, method: str = "auto", tol: float = 1e
         operator = make_operator(panels, method, tol=tol,
                                  progress=lambda done, total: report("near field", done, total))
     else:
-        operator = _general_operator(problem, method)
+        operator = _general_operator(problem, method, tol, report)
     preconditioner = None
     if operator.method == "fast":
         report("preconditioner", 0, 1)
-        preconditioner = LocalInverse(operator)
+        preconditioner = LocalInverse(operator) if problem.is_simple else SystemPreconditioner(operator)
         report("preconditioner", 1, 1)
     t1 = time.perf_counter()
     n = len(panels)
@@ -255,10 +254,6 @@ def solve_capacitance(problem: Problem, *, method: str = "auto", tol: float = 1e
     )
 
 
-#: Largest problem with interfaces, a ground plane or floating conductors solved densely.
-DENSE_GENERAL_LIMIT = 15_000
-
-
 class _StoredSystem:
     """The assembled general system, solved by LU (``matrix`` attribute, LinearOperator-like)."""
 
@@ -272,11 +267,13 @@ class _StoredSystem:
         return self.matrix @ x
 
 
-def _general_operator(problem: Problem, method: str):
-    n = len(problem.panels)
-    if method == "fast" or (method == "auto" and n > DENSE_GENERAL_LIMIT):
-        raise SolverError(
-            f"{n:,} panels with dielectric interfaces, a ground plane or floating conductors: this version solves "
-            f"those with the dense method only (up to {DENSE_GENERAL_LIMIT:,} panels); coarsen the mesh or use "
-            "--method dense")
-    return _StoredSystem(assemble_system(problem))
+def _general_operator(problem: Problem, method: str, tol: float, report):
+    """Stored or matrix-free operator of a problem with interfaces, a plane or floating conductors."""
+    if method == "auto":
+        method = "dense" if len(problem.panels) <= AUTO_DENSE_LIMIT else "fast"
+    if method == "dense":
+        return _StoredSystem(assemble_system(problem))
+    if method == "fast":
+        report("near field", 0, 1)
+        return FastSystem(problem, tol=tol)
+    raise ValueError(f"method must be auto, dense or fast, got {method!r}")

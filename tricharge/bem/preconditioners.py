@@ -64,3 +64,33 @@ class LocalInverse(LinearOperator):
 
     def _matmat(self, x):
         return self.matrix @ x
+
+
+class SystemPreconditioner(LinearOperator):
+    """Preconditioner for the general system (:class:`~tricharge.bem.system.FastSystem`):
+    :class:`LocalInverse` on the conductor panels' single layer (images ignored),
+    ``1 / (2 pi)`` on interface rows (their diagonal), identity on floating rows."""
+
+    def __init__(self, system, k: int = LOCAL_INVERSE_SIZE):
+        from types import SimpleNamespace
+
+        from .panels import Panels
+
+        panels = system.panels
+        self.rows_c, self.rows_i = system.rows_c, system.rows_i
+        self.local = None
+        if len(self.rows_c):
+            conductor_panels = Panels(panels.vertices, panels.triangles[self.rows_c])
+            self.local = LocalInverse(SimpleNamespace(panels=conductor_panels, policy=system.policy), k)
+        super().__init__(dtype=np.float64, shape=system.shape)
+
+    def _matvec(self, x):
+        return self._matmat(np.asarray(x).reshape(-1, 1))[:, 0]
+
+    def _matmat(self, x):
+        x = np.asarray(x, dtype=np.float64)
+        out = x.copy()
+        if self.local is not None:
+            out[self.rows_c] = self.local.matrix @ x[self.rows_c]
+        out[self.rows_i] = x[self.rows_i] / (2.0 * np.pi)
+        return out
