@@ -73,7 +73,7 @@ def test_shell_around_a_conductor_is_fine():
 
 
 def test_geometry_below_the_ground_plane():
-    with pytest.raises(MeshError, match=r"test.msh: \d+ vertices lie on or below the ground plane z = 0.5 mm "
+    with pytest.raises(MeshError, match=r"test.msh: \d+ conductor vertices lie on or below the ground plane z = 0.5 mm "
                                         r"\(lowest near .* mm\); raise the geometry or lower the plane"):
         conductors_model(shapes.cube(1e-3, 2), unit="mm", ground_z=0.5e-3)
 
@@ -165,3 +165,27 @@ def test_reference_errors(kwargs, message):
     args.update(kwargs)
     with pytest.raises(MeshError, match=message):
         Model(v, t, np.zeros(len(t), int), ("a",), **args)
+
+
+def _slab_model(z_bottom, with_bottom=False):
+    """A conductor cube above an open dielectric box (no bottom) reaching down to z_bottom."""
+    cv, ct = shapes.cube(0.4, 2, center=(0, 0, 2.0))
+    bv, bt = shapes.box((3, 3, 1), (3, 3, 2), center=(0, 0, z_bottom + 0.5))
+    centre_z = bv[bt].mean(axis=1)[:, 2]
+    if not with_bottom:
+        bt = bt[centre_z > z_bottom + 1e-9]
+    v, t, labels = shapes.combine((cv, ct), (bv, bt))
+    return Model(v, t, labels, ("lead", "slab"), (Conductor("lead", ("lead",)),),
+                 (Interface("slab", ("slab",), inside="fr4", outside="air"),),
+                 (Medium("air", 1.0), Medium("fr4", 4.4)), background="air", ground_z=0.0, source="board.toml")
+
+
+def test_interface_may_rest_on_the_ground_plane():
+    assert _slab_model(0.0).problems == ()
+
+
+def test_interface_below_the_plane_or_in_it_is_refused():
+    with pytest.raises(MeshError, match=r"board.toml: \d+ interface vertices lie below the ground plane z = 0 m"):
+        _slab_model(-0.2)
+    with pytest.raises(MeshError, match=r"board.toml: 18 panels lie in the ground plane z = 0 m; leave them out"):
+        _slab_model(0.0, with_bottom=True)

@@ -251,12 +251,27 @@ def _check_ground_and_size(model, errors):
         errors.append(f"{model.source}: the model is {diagonal:.3g} m across in unit '{model.unit}'{in_unit}; "
                       f"that looks like a wrong unit: is it '{guess}'?")
     if model.ground_z is not None:
-        below = used[:, 2] <= model.ground_z
-        if below.any():
-            lowest = used[np.argmin(used[:, 2])]
-            errors.append(f"{model.source}: {int(below.sum())} vertices lie on or below the ground plane "
-                          f"z = {model.ground_z / metres_per(model.unit):g} {model.unit} (lowest near "
-                          f"{_where(lowest, model.unit)}); raise the geometry or lower the plane")
+        _check_ground(model, diagonal, errors)
+
+
+def _check_ground(model, diagonal: float, errors) -> None:
+    """Conductors strictly above the plane; interfaces may reach down to it (a substrate
+    resting on the plane, its bottom face left out) but not below, and no panel may lie in it."""
+    z0, scale, tol = model.ground_z, metres_per(model.unit), 1e-9 * diagonal
+    conductor_vertices = model.vertices[np.unique(model.triangles[model.conductor_labels >= 0])]
+    interface_vertices = model.vertices[np.unique(model.triangles[model.conductor_labels < 0])]
+    for kind, points, limit in (("conductor", conductor_vertices, z0 + tol), ("interface", interface_vertices, z0 - tol)):
+        bad = points[:, 2] <= limit
+        if bad.any():
+            lowest = points[np.argmin(points[:, 2])]
+            where = "on or below" if kind == "conductor" else "below"
+            errors.append(f"{model.source}: {int(bad.sum())} {kind} vertices lie {where} the ground plane "
+                          f"z = {z0 / scale:g} {model.unit} (lowest near {_where(lowest, model.unit)}); raise the "
+                          "geometry or lower the plane")
+    flat = np.all(np.abs(model.vertices[model.triangles][:, :, 2] - z0) <= tol, axis=1)
+    if flat.any():
+        errors.append(f"{model.source}: {int(flat.sum())} panels lie in the ground plane z = {z0 / scale:g} "
+                      f"{model.unit}; leave them out (the plane itself is the boundary there)")
 
 
 def survey(model) -> Survey:
