@@ -7,7 +7,7 @@ Three scenarios, all our own and invented for the demos (no real product or comp
   shield plate. A designer wants the pin-to-pin and pin-to-shield parasitics.
   Conductors are Gmsh physical groups named pin1, pin2, pin3 and shield.
 * ``demo_package.msh`` + ``demo_package.toml`` -- an invented four-lead sensor package:
-  a 3 mm x 3 mm x 1 mm mold body resting 0.1 mm above a grounded board plane, holding a
+  a 3 mm x 3 mm x 1 mm mold body on a 0.1 mm board substrate over its ground plane, holding a
   die on its paddle, four bond pads, four gold-style bond wires and four leads. Each
   signal net is lead + wire + pad; the designer wants the net-to-net coupling.
 * ``demo_hv.msh`` + ``demo_hv.toml`` -- an invented high-voltage test cell in air: a
@@ -60,6 +60,7 @@ def write_demo(path: Path) -> None:
 # --- the four-lead package (mm) ---------------------------------------------------------
 
 MOLD = dict(size=(3.0, 3.0, 1.0), divisions=(15, 15, 5), center=(0.0, 0.0, 0.6))      # z 0.1 .. 1.1
+BOARD = dict(size=(5.0, 5.0, 0.1), divisions=(25, 25, 1), center=(0.0, 0.0, 0.05))    # z 0 .. 0.1, on the plane
 PADDLE = dict(size=(1.0, 1.0, 0.35), divisions=(10, 10, 4), center=(0.0, 0.0, 0.475))  # paddle + die, z 0.3 .. 0.65
 LEAD = dict(size=(0.6, 0.3, 0.15), divisions=(12, 6, 3))                              # z 0.3 .. 0.45
 PAD = dict(size=(0.12, 0.12, 0.02), divisions=(3, 3, 1))                              # z 0.67 .. 0.69
@@ -91,7 +92,30 @@ def package_parts():
         end = (1.0 * sx, 0.5 * sy, _top(LEAD, LEAD_Z) + lift)
         path = shapes.arc_path(start, end, LOOP_HEIGHT, 96)
         wires.append((f"wire{k}", *shapes.tube(path, WIRE_RADIUS, WIRE_PANEL)))
-    return leads + wires + pads + [("paddle", *shapes.box(**PADDLE)), ("mold", *shapes.box(**MOLD))]
+    return leads + wires + pads + [("paddle", *shapes.box(**PADDLE))] + _mold_and_board()
+
+
+def _faces_without(vertices, triangles, keep):
+    """(vertices, triangles) keeping the triangles whose centroids satisfy ``keep(c)``."""
+    centroids = vertices[triangles].mean(axis=1)
+    return vertices, triangles[keep(centroids)]
+
+
+def _mold_and_board():
+    """The mold body (open at the bottom) standing on a board substrate that rests on the
+    ground plane. The board's top is split where the mold stands on it, so three
+    interfaces meet along shared vertices: mold|air, mold|board and board|air. The
+    board's bottom lies in the ground plane and is left out."""
+    mold_bottom = MOLD["center"][2] - MOLD["size"][2] / 2
+    board_top = BOARD["center"][2] + BOARD["size"][2] / 2
+    half_x, half_y = MOLD["size"][0] / 2, MOLD["size"][1] / 2
+    mold = _faces_without(*shapes.box(**MOLD), lambda c: c[:, 2] > mold_bottom + 1e-9)
+    top_v, top_t = shapes.plate(BOARD["size"][:2], BOARD["divisions"][:2], center=(0.0, 0.0, board_top))
+    under = lambda c: (np.abs(c[:, 0]) < half_x) & (np.abs(c[:, 1]) < half_y)  # noqa: E731
+    base = _faces_without(top_v, top_t, under)
+    board_top_faces = _faces_without(top_v, top_t, lambda c: ~under(c))
+    edge = _faces_without(*shapes.box(**BOARD), lambda c: (c[:, 2] > 1e-9) & (c[:, 2] < board_top - 1e-9))
+    return [("mold", *mold), ("mold_base", *base), ("board_top", *board_top_faces), ("board_edge", *edge)]
 
 
 PACKAGE_TOML = """\
@@ -102,11 +126,12 @@ unit = "mm"
 background = "air"
 
 [ground]
-z = 0.0            # board plane; the mold body rests 0.1 mm above it
+z = 0.0            # the board's ground plane; the 0.1 mm board substrate rests on it
 
 [media]
 air = 1.0
-mold = 3.9
+mold = 3.9         # epoxy mold compound (typical value, invented for the demo)
+board = 4.4        # glass-epoxy board substrate (typical value, invented for the demo)
 
 # Lead, wire and pad are separate closed bodies with small gaps between them in the
 # mesh; listing them together makes them one conductor.
@@ -138,6 +163,16 @@ floating = true         # left unconnected in this part
 [interfaces.mold_skin]
 surfaces = ["mold"]
 inside = "mold"
+outside = "air"
+
+[interfaces.mold_base]     # where the mold stands on the board; normals point up
+surfaces = ["mold_base"]
+inside = "board"
+outside = "mold"
+
+[interfaces.board_skin]    # the board's top around the mold, and its edges
+surfaces = ["board_top", "board_edge"]
+inside = "board"
 outside = "air"
 """
 

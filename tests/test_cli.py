@@ -103,8 +103,8 @@ def test_version_and_help(capsys):
 def test_inspect_shows_parts_media_and_interfaces(capsys):
     assert main(["demo", "package", "--inspect"]) == 0
     out = capsys.readouterr().out
-    assert "5 conductors, 1 interface, 6,876 panels" in out
-    assert "ground plane: z = 0 mm; background medium: air" in out and "mold 3.9" in out
+    assert "5 conductors, 3 interfaces, 7,876 panels" in out
+    assert "ground plane: z = 0 mm; background medium: air" in out and "mold 3.9" in out and "board 4.4" in out
     assert "net1" in out and "lead1, wire1, pad1" in out and "3.3 V, in mold" in out
     assert "mold_skin (interface)" in out and "mold | air" in out
     assert "floating" in out and "no errors: the model can be solved" in out

@@ -62,18 +62,36 @@ def test_committed_model_file_matches_and_names_existing_groups(stem, text, gene
         assert not ("volts" in spec and spec.get("floating", False))
 
 
+INTERFACE_PARTS = {"mold", "mold_base", "board_top", "board_edge"}
+
+
+def _conductor_parts(parts):
+    return [p for p in parts if p[0] not in INTERFACE_PARTS]
+
+
 @pytest.mark.parametrize("stem", ["demo_package", "demo_hv"])
-def test_every_part_is_a_closed_outward_body_under_10k_panels(stem, generated):
+def test_every_conductor_part_is_a_closed_outward_body_under_10k_panels(stem, generated):
     parts = generated[stem]
     assert sum(len(t) for _, _, t in parts) < 10_000
-    for name, v, t in parts:
+    for name, v, t in _conductor_parts(parts):
         assert_closed_and_consistent(v, t)
         assert signed_volume(v, t) > 0, name
 
 
+def test_mold_skin_and_base_close_the_mold_body(generated):
+    """The open mold box and the board area under it together enclose the mold, outward."""
+    from tricharge.mesh import merge_vertices
+
+    parts = {name: (v, t) for name, v, t in generated["demo_package"]}
+    (mv, mt), (bv, bt) = parts["mold"], parts["mold_base"]
+    v, t = merge_vertices(np.vstack([mv, bv]), np.vstack([mt, bt[:, ::-1] + len(mv)]), 1e-9)
+    assert_closed_and_consistent(v, t)
+    assert signed_volume(v, t) == pytest.approx(3.0 * 3.0 * 1.0)
+
+
 @pytest.mark.parametrize("stem, gap", [("demo_package", 0.005), ("demo_hv", 10.0)])
-def test_no_two_parts_touch(stem, gap, generated):
-    parts = generated[stem]
+def test_no_two_conductor_parts_touch(stem, gap, generated):
+    parts = _conductor_parts(generated[stem])
     for k, (name_a, va, _) in enumerate(parts):
         for name_b, vb, _ in parts[k + 1:]:
             closest = cKDTree(vb).query(va)[0].min()
@@ -92,10 +110,11 @@ def test_package_wires_clear_their_lead_and_pad_and_everything_sits_in_the_mold(
         lead = _box_distance(wire, (1.1 * sx, 0.5 * sy, make_demo.LEAD_Z), make_demo.LEAD["size"]).min()
         pad = _box_distance(wire, (0.35 * sx, 0.35 * sy, make_demo.PAD_Z), make_demo.PAD["size"]).min()
         assert 0.02 <= lead < 0.04 and 0.02 <= pad < 0.04, (k, lead, pad)
-    inside = np.vstack([v for name, v in parts.items() if name != "mold"])
+    inside = np.vstack([v for name, v in parts.items() if name not in INTERFACE_PARTS])
     mold = make_demo.MOLD
     assert _box_distance(inside, mold["center"], np.asarray(mold["size"]) - 0.15).max() == 0.0
-    assert min(v[:, 2].min() for v in parts.values()) > 0.05    # above the ground plane at z = 0
+    assert inside[:, 2].min() > 0.15                                  # conductors clear the board top
+    assert min(v[:, 2].min() for v in parts.values()) == 0.0          # the board rests on the plane
 
 
 def test_hv_ring_surrounds_the_rod_near_its_top(generated):

@@ -40,11 +40,11 @@ def prefix_for(value: float) -> tuple[float, str]:
 def format_eng(value: float, unit: str, digits: int = 4) -> str:
     """Value with an engineering prefix and ``digits`` significant digits.
 
-    >>> format_eng(1.11265e-10, "F")
-    '111.3 pF'
+    >>> format_eng(1.11265e-10, "F"), format_eng(1.3799e-13, "F")
+    ('111.3 pF', '138.0 fF')
     """
     scale, symbol = prefix_for(value)
-    return f"{value / scale:.{digits}g} {symbol}{unit}"
+    return f"{f'{value / scale:#.{digits}g}'.rstrip('.')} {symbol}{unit}"
 
 
 _SI_PREFIX = {"a": 1e-18, "f": 1e-15, "p": 1e-12, "n": 1e-9, "u": 1e-6, "µ": 1e-6, "m": 1e-3, "": 1.0,

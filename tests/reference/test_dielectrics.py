@@ -7,7 +7,7 @@ import numpy as np
 import pytest
 
 from tricharge import shapes
-from tricharge.bem.capacitance import EPS0, FOUR_PI_EPS0, solve_capacitance
+from tricharge.bem.capacitance import FOUR_PI_EPS0, solve_capacitance
 from tricharge.bem.fields import potential_at
 from tricharge.bem.system import problem_from_arrays
 
