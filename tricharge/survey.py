@@ -131,7 +131,7 @@ def _summaries(model, parts, aspects, sizes, areas) -> list[PartSummary]:
         _, closed = _closed_pieces(model.triangles[idx])
         if kind == "conductor":
             detail = ("floating" if record.floating else
-                      format_eng(record.voltage, "V") if record.voltage is not None else "")
+                      format_eng(record.voltage, "V", keep_zeros=False) if record.voltage is not None else "")
             media = {model.medium_of_surface(s) for s in record.surfaces}
             detail = ", ".join(x for x in (detail, "in " + " + ".join(sorted(media))) if x)
         else:

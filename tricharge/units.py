@@ -37,14 +37,16 @@ def prefix_for(value: float) -> tuple[float, str]:
     return chosen
 
 
-def format_eng(value: float, unit: str, digits: int = 4) -> str:
-    """Value with an engineering prefix and ``digits`` significant digits.
+def format_eng(value: float, unit: str, digits: int = 4, *, keep_zeros: bool = True) -> str:
+    """Value with an engineering prefix and ``digits`` significant digits (trailing zeros
+    kept, as a computed value's precision, unless ``keep_zeros`` is False).
 
     >>> format_eng(1.11265e-10, "F"), format_eng(1.3799e-13, "F")
     ('111.3 pF', '138.0 fF')
     """
     scale, symbol = prefix_for(value)
-    return f"{f'{value / scale:#.{digits}g}'.rstrip('.')} {symbol}{unit}"
+    number = f"{value / scale:#.{digits}g}" if keep_zeros else f"{value / scale:.{digits}g}"
+    return f"{number.rstrip('.')} {symbol}{unit}"
 
 
 _SI_PREFIX = {"a": 1e-18, "f": 1e-15, "p": 1e-12, "n": 1e-9, "u": 1e-6, "µ": 1e-6, "m": 1e-3, "": 1.0,
