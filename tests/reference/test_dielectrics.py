@@ -101,3 +101,15 @@ def test_fast_and_dense_agree(case):
     fast = solve_capacitance(problem, method="fast", tol=1e-7)
     assert fast.method == "fast" and fast.converged
     np.testing.assert_allclose(fast.capacitance, dense.capacitance, rtol=1e-4)
+
+
+def test_sphere_in_an_unbounded_medium():
+    """C = 4 pi eps0 eps_r a (exact; e.g. Jackson, Classical Electrodynamics, 3rd ed., ch. 4, chapter from memory).
+    Within 0.5 %; the background medium is one setting of the model."""
+    from tricharge import Model, solve
+    from tricharge.model import Conductor, Medium
+
+    v, t = shapes.sphere(1.0, 12)
+    model = Model(v, t, np.zeros(len(t), np.int64), ("ball",), (Conductor("ball", ("ball",)),),
+                  media=(Medium("oil", 2.2),), background="oil")
+    assert solve(model).capacitance[0, 0] == pytest.approx(FOUR_PI_EPS0 * 2.2, rel=0.005)

@@ -89,3 +89,10 @@ def test_microstrip_per_unit_length(eps_r):
     capacitance = [solve_capacitance(microstrip(L, eps_r), method="auto").capacitance[0, 0] for L in lengths]
     per_length = (capacitance[1] - capacitance[0]) / (lengths[1] - lengths[0]) / EPS0
     assert per_length == pytest.approx(hammerstad_jensen(1.0, eps_r), rel=0.05)
+
+
+def test_fast_and_dense_agree_on_the_microstrip():
+    problem = microstrip(3.0, 4.0)
+    dense = solve_capacitance(problem, method="dense").capacitance[0, 0]
+    fast = solve_capacitance(problem, method="fast", tol=1e-7).capacitance[0, 0]
+    assert fast == pytest.approx(dense, rel=1e-4)
