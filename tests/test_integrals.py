@@ -70,7 +70,7 @@ def polar_potential(x, tri):
         dist = abs(np.dot(a, normal))
         phi_n = np.arctan2(normal[1], normal[0]) if np.dot(a, normal) > 0 else np.arctan2(-normal[1], -normal[0])
 
-        def g(theta):
+        def g(theta, dist=dist, phi_n=phi_n):
             rmax = dist / np.cos(theta - phi_n)
             return np.sqrt(rmax**2 + h**2) - h
 

@@ -175,23 +175,23 @@ class Model:
     def conductor_names(self) -> tuple[str, ...]:
         return tuple(c.name for c in self.conductors)
 
-    @cached_property
-    def conductor_labels(self) -> np.ndarray:
-        """(m,) int64: conductor index of each triangle, -1 on interface triangles."""
+    def _labels(self, records) -> np.ndarray:
+        """(m,) int64: index into ``records`` of the record owning each triangle, or -1."""
         by_surface = np.full(len(self.surfaces), -1, dtype=np.int64)
-        for k, c in enumerate(self.conductors):
-            for s in c.surfaces:
+        for k, record in enumerate(records):
+            for s in record.surfaces:
                 by_surface[self.surfaces.index(s)] = k
         return by_surface[self.surface_index]
 
     @cached_property
+    def conductor_labels(self) -> np.ndarray:
+        """(m,) int64: conductor index of each triangle, -1 on interface triangles."""
+        return self._labels(self.conductors)
+
+    @cached_property
     def interface_labels(self) -> np.ndarray:
         """(m,) int64: interface index of each triangle, -1 on conductor triangles."""
-        by_surface = np.full(len(self.surfaces), -1, dtype=np.int64)
-        for k, i in enumerate(self.interfaces):
-            for s in i.surfaces:
-                by_surface[self.surfaces.index(s)] = k
-        return by_surface[self.surface_index]
+        return self._labels(self.interfaces)
 
     def permittivity(self, medium: str) -> float:
         """Relative permittivity of a medium by name (vacuum is 1)."""
