@@ -3,6 +3,7 @@
 import json
 import subprocess
 import sys
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -10,6 +11,8 @@ import trimesh
 
 from tricharge import shapes
 from tricharge.cli import main
+
+DATA_HV = Path(__file__).resolve().parents[1] / "meshes" / "demo_hv.toml"
 
 
 def _sphere_stl(tmp_path, radius=10.0, frequency=4):
@@ -133,3 +136,40 @@ def test_inspect_broken_model_prints_table_and_one_error_line(tmp_path, capsys):
 def test_default_demo_solves(capsys):
     assert main(["demo", "-q"]) == 0
     assert capsys.readouterr().out == ""
+
+
+def test_field_command_reports_hot_spots_margins_and_cautions(tmp_path, capsys):
+    out = tmp_path / "field.json"
+    code = main(["field", str(DATA_HV), "--volts", "hv=30kV", "--withstand", "air=3kV/mm", "--top", "2",
+                 "--json", str(out)])
+    text = capsys.readouterr().out
+    assert code == 0
+    assert "30 kV" in text and "Highest surface fields" in text and "kV/mm" in text
+    assert "utilisation factor E_mean/E_max" in text and "air: peak" in text
+    assert "Cautions for high-voltage use" in text and "qualified engineer" in text
+    data = json.loads(out.read_text())
+    assert data["potentials_V"] == [30000.0, 0.0]
+    spots = [s for s in data["hot_spots"] if s["part"] == "hv"]
+    assert len(spots) == 2 and spots[0]["field_V_per_m"] >= spots[1]["field_V_per_m"]
+    assert spots[0]["location_m"][2] < 0.045  # the peak is at the rod's tip (z = 35 mm), not its top
+
+
+@pytest.mark.parametrize("args, message", [
+    (["--volts", "hv"], "--volts 'hv': write NAME=VALUE"),
+    (["--volts", "hx=3kV"], "no conductor named hx; the model has hv, ground"),
+    (["--volts", "hv=3 kA"], "cannot read '3 kA' as V"),
+    (["--withstand", "air=3 kV/in"], "--withstand air: cannot read '3 kV/in'"),
+    (["--withstand", "oil=3kV/mm"], "no medium named oil"),
+])
+def test_field_command_bad_options(capsys, args, message):
+    assert main(["field", str(DATA_HV)] + args) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and message in err
+
+
+def test_field_needs_a_voltage_for_every_driven_conductor(tmp_path, capsys):
+    path = tmp_path / "ball.stl"
+    trimesh.Trimesh(*shapes.sphere(1.0, 4), process=False).export(path)
+    assert main(["field", str(path)]) == 2
+    assert "conductor 'c1' has no voltage; give one with --volts c1=VALUE" in capsys.readouterr().err
+    assert main(["field", str(path), "--volts", "c1=1kV", "-q"]) == 0

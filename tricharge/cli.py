@@ -112,6 +112,66 @@ def solve(input_path: Path, unit: str | None, json_path: Path | None, method: st
     _solve_and_report(input_path, unit, json_path, quiet, method, tol)
 
 
+def _pairs(values, parse, what: str) -> dict:
+    """NAME=VALUE options into a dict, values parsed by ``parse``."""
+    from .errors import OptionError
+
+    out = {}
+    for item in values:
+        name, sep, value = item.partition("=")
+        if not sep or not name.strip():
+            raise OptionError(f"{what} {item!r}: write NAME=VALUE, e.g. hv=12kV")
+        out[name.strip()] = parse(value, what=f"{what} {name.strip()}")
+    return out
+
+
+@cli.command()
+@click.argument("input_path", metavar="INPUT", type=click.Path(path_type=Path))
+@_unit_option
+@click.option("--volts", "volts", multiple=True, metavar="NAME=VALUE",
+              help="Voltage of a conductor, e.g. hv=50kV (repeatable); overrides the model file.")
+@click.option("--withstand", multiple=True, metavar="MEDIUM=STRENGTH",
+              help="Withstand field strength of a medium, e.g. air=3kV/mm, for margins (repeatable).")
+@click.option("--top", type=click.IntRange(1, 100), default=5, show_default=True,
+              help="Hot spots listed per conductor and interface.")
+@_json_option
+@_method_option
+@_quiet_option
+def field(input_path: Path, unit: str | None, volts, withstand, top: int, json_path: Path | None, method: str,
+          quiet: bool):
+    """Surface fields and hot spots of INPUT with applied voltages (model file or --volts)."""
+    from .io.export import check_writable, write_atomic
+    from .io.modelfile import load
+    from .io.text import field_report
+    from .pipeline import solve_field
+    from .units import parse_field_strength, parse_quantity
+
+    if json_path is not None:
+        check_writable(json_path)
+    voltages = _pairs(volts, lambda v, what: parse_quantity(v, "V", what=what), "--volts")
+    strengths = _pairs(withstand, parse_field_strength, "--withstand")
+    model = load(input_path, unit=unit)
+    progress = _Progress(quiet)
+    try:
+        result = solve_field(model, voltages, method=method, top=top, withstand=strengths, progress=progress)
+    finally:
+        progress.close()
+    _echo(field_report(result, model, source=input_path.name, version=__version__), quiet)
+    if json_path is not None:
+        import json
+
+        data = {"conductors": list(result.conductors), "potentials_V": result.potentials.tolist(),
+                "free_charge_C": result.free_charge.tolist(), "unit": model.unit, "method": result.method,
+                "hot_spots": [{"part": result.parts[s.group], "rank": s.rank, "field_V_per_m": s.field,
+                               "location_m": list(s.location), "panel_size_m": s.panel_size, "sharp": s.sharp,
+                               "sharp_angle_deg": s.sharp_angle} for s in result.spots],
+                "utilisation": result.utilisation, "gap_m": result.gap,
+                "margins": [{"medium": m, "peak_V_per_m": e, "withstand_V_per_m": w} for m, e, w in result.margins],
+                "input_file": str(input_path), "tricharge_version": __version__}
+        write_atomic(json_path, json.dumps(data, indent=2) + "\n")
+        _echo(f"\nwrote {json_path}", quiet)
+
+
 @cli.command()
 @click.argument("input_path", metavar="INPUT", type=click.Path(path_type=Path))
 @_unit_option

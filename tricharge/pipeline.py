@@ -2,11 +2,15 @@
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 
-from .bem.capacitance import Result, solve_capacitance
+from .bem.capacitance import Result, solve_capacitance, solve_voltages
+from .bem.fields import hot_spots, surface_field
 from .bem.panels import make_panels
 from .bem.system import Problem
+from .errors import OptionError
 from .model import Model
 
 
@@ -43,3 +47,116 @@ def solve(model: Model, *, method: str = "auto", tol: float = 1e-6, progress=Non
     109.8
     """
     return solve_capacitance(problem_of(model), method=method, tol=tol, progress=progress)
+
+
+@dataclass(frozen=True, repr=False)
+class FieldResult:
+    """Fields for applied voltages.
+
+    conductors : names; potentials : (K,) V; free_charge : (K,) C
+    surface : per-panel surface fields (:class:`~tricharge.bem.fields.SurfaceField`)
+    parts : names of the parts hot spots refer to (conductors, then interfaces)
+    spots : hot spots, ``spot.group`` indexing ``parts``
+    margins : per medium with a withstand strength: (medium, E_max V/m, withstand V/m)
+    gap : shortest distance between the two driven electrodes (m), when there are two
+    utilisation : E_mean / E_max for that gap (Schwaiger's factor), or None
+    """
+
+    conductors: tuple[str, ...]
+    potentials: np.ndarray
+    free_charge: np.ndarray
+    surface: object
+    parts: tuple[str, ...]
+    spots: list
+    margins: list
+    gap: float | None
+    utilisation: float | None
+    method: str
+    iterations: int
+    residual: float
+
+    def __repr__(self) -> str:
+        peak = max((s.field for s in self.spots), default=0.0)
+        return f"FieldResult({len(self.conductors)} conductors, peak |E| {peak:.4g} V/m, {self.method})"
+
+
+def applied_voltages(model: Model, overrides: dict[str, float] | None = None) -> np.ndarray:
+    """(K,) volts: the model file's values, replaced by ``overrides``; floating ones 0."""
+    overrides = dict(overrides or {})
+    unknown = sorted(set(overrides) - set(model.conductor_names))
+    if unknown:
+        raise OptionError(f"{model.source}: no conductor named {', '.join(unknown)}; the model has "
+                          f"{', '.join(model.conductor_names)}")
+    volts = np.zeros(len(model.conductors))
+    for k, c in enumerate(model.conductors):
+        if c.floating:
+            if c.name in overrides:
+                raise OptionError(f"{model.source}: conductor '{c.name}' is floating; it takes no voltage")
+            continue
+        value = overrides.get(c.name, c.voltage)
+        if value is None:
+            raise OptionError(f"{model.source}: conductor '{c.name}' has no voltage; give one with "
+                              f"--volts {c.name}=VALUE or volts = ... in the model file")
+        volts[k] = value
+    return volts
+
+
+def solve_field(model: Model, voltages: dict[str, float] | None = None, *, method: str = "auto", tol: float = 1e-8,
+                top: int = 5, withstand: dict[str, float] | None = None, progress=None) -> FieldResult:
+    """Surface fields, hot spots and margins for applied voltages.
+
+    ``voltages`` override the model's ``volts`` per conductor name; ``withstand`` gives a
+    withstand field strength (V/m) per medium name, for the margins.
+    """
+    problem = problem_of(model)
+    volts = applied_voltages(model, voltages)
+    charge = np.array([c.net_charge for c in model.conductors])
+    excitation = solve_voltages(problem, volts, charge, method=method, tol=tol, progress=progress)
+    surface = surface_field(problem, excitation.sigma)
+    groups = model.conductor_labels.copy()
+    groups[model.interface_labels >= 0] = len(model.conductors) + model.interface_labels[model.interface_labels >= 0]
+    parts = model.conductor_names + tuple(i.name for i in model.interfaces)
+    spots = hot_spots(problem.panels, surface.magnitude, groups, top=top)
+    margins = _margins(model, surface, withstand or {})
+    gap, utilisation = _utilisation(model, volts, surface)
+    return FieldResult(model.conductor_names, excitation.potentials, excitation.free_charge, surface, parts, spots,
+                       margins, gap, utilisation, excitation.method, excitation.iterations, excitation.residual)
+
+
+def _panel_media(model: Model):
+    """Per panel: the medium on the outside (and, for interface panels, the inside)."""
+    outside = np.array([model.medium_of_surface(model.surfaces[s]) for s in model.surface_index], dtype=object)
+    inside = np.full(model.n_panels, None, dtype=object)
+    for k, interface in enumerate(model.interfaces):
+        on = model.interface_labels == k
+        outside[on], inside[on] = interface.outside, interface.inside
+    return outside, inside
+
+
+def _margins(model: Model, surface, withstand: dict[str, float]):
+    known = {m.name for m in model.media} | {model.background}
+    unknown = sorted(set(withstand) - known)
+    if unknown:
+        raise OptionError(f"{model.source}: no medium named {', '.join(unknown)}; the model has {', '.join(sorted(known))}")
+    outside, inside = _panel_media(model)
+    side_out = np.hypot(surface.outside, surface.tangential)
+    side_in = np.hypot(surface.inside, surface.tangential)
+    margins = []
+    for medium, strength in withstand.items():
+        values = np.concatenate([side_out[outside == medium], side_in[inside == medium]])
+        if len(values):
+            margins.append((medium, float(values.max()), float(strength)))
+    return margins
+
+
+def _utilisation(model: Model, volts: np.ndarray, surface):
+    """Schwaiger's utilisation factor E_mean / E_max for exactly two driven electrodes."""
+    driven = [k for k, c in enumerate(model.conductors) if not c.floating]
+    if len(driven) != 2 or volts[driven[0]] == volts[driven[1]]:
+        return None, None
+    from scipy.spatial import cKDTree
+
+    a, b = (model.vertices[np.unique(model.triangles[model.conductor_labels == k])] for k in driven)
+    gap = float(cKDTree(b).query(a)[0].min())
+    e_max = float(surface.magnitude[model.conductor_labels >= 0].max())
+    return gap, abs(volts[driven[0]] - volts[driven[1]]) / gap / e_max

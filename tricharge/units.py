@@ -71,3 +71,22 @@ def parse_quantity(value, unit: str, *, what: str = "value") -> float:
     if not match or (match.group(2) and not text.endswith(unit)):
         raise OptionError(f"{what}: cannot read {value!r} as {unit}; write a number like 1500 or '1.5k{unit}'")
     return float(match.group(1)) * _SI_PREFIX[match.group(2)]
+
+
+_FIELD_UNITS = {"V/m": 1.0, "kV/m": 1e3, "V/mm": 1e3, "kV/cm": 1e5, "MV/m": 1e6, "kV/mm": 1e6, "V/um": 1e6}
+
+
+def parse_field_strength(value, *, what: str = "field strength") -> float:
+    """Text like ``"3kV/mm"``, ``"30 kV/cm"`` or a number (V/m), in V/m.
+
+    >>> parse_field_strength("3 kV/mm"), parse_field_strength("30kV/cm"), parse_field_strength(2e6)
+    (3000000.0, 3000000.0, 2000000.0)
+    """
+    import re
+
+    if isinstance(value, (int, float)) and not isinstance(value, bool):
+        return float(value)
+    match = re.fullmatch(r"\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*([A-Za-z/]*)\s*", str(value))
+    if not match or (match.group(2) or "V/m") not in _FIELD_UNITS:
+        raise OptionError(f"{what}: cannot read {value!r}; write e.g. '3kV/mm' (units: {', '.join(_FIELD_UNITS)})")
+    return float(match.group(1)) * _FIELD_UNITS[match.group(2) or "V/m"]

@@ -219,23 +219,12 @@ def solve_capacitance(problem: Problem, *, method: str = "auto", tol: float = 1e
     if not len(driven):
         raise SolverError("every conductor is floating: at least one needs a potential to define a capacitance")
     t0 = time.perf_counter()
-    if problem.is_simple:
-        operator = make_operator(panels, method, tol=tol,
-                                 progress=lambda done, total: report("near field", done, total))
-    else:
-        operator = _general_operator(problem, method, tol, report)
-    preconditioner = None
-    if operator.method == "fast":
-        report("preconditioner", 0, 1)
-        preconditioner = LocalInverse(operator) if problem.is_simple else SystemPreconditioner(operator)
-        report("preconditioner", 1, 1)
+    operator, preconditioner = _prepare(problem, method, tol, report)
     t1 = time.perf_counter()
     n = len(panels)
     rhs = np.zeros((operator.shape[0], len(driven)))
     rhs[:n] = problem.conductor[:, None] == driven[None, :]  # 1 V on one conductor per column
-    maxiter = 20
-    solution = solve_linear(operator, rhs, tol=tol, preconditioner=preconditioner, restart=50, maxiter=maxiter,
-                            callback=lambda it, res: report("iterations", it, 50 * maxiter))
+    solution = _solve(operator, rhs, tol, preconditioner, report)
     t2 = time.perf_counter()
     sigma = solution.x[:n] * FOUR_PI_EPS0
     labels = np.full(n, -1, dtype=np.int64)
@@ -252,6 +241,79 @@ def solve_capacitance(problem: Problem, *, method: str = "auto", tol: float = 1e
         reference="ground plane" if problem.ground_z is not None else "infinity",
         floating=tuple(problem.names[k] for k in problem.floating_index),
     )
+
+
+def _prepare(problem: Problem, method: str, tol: float, report):
+    """The operator for ``problem`` and, on the fast path, its preconditioner."""
+    if problem.is_simple:
+        operator = make_operator(problem.panels, method, tol=tol,
+                                 progress=lambda done, total: report("near field", done, total))
+    else:
+        operator = _general_operator(problem, method, tol, report)
+    preconditioner = None
+    if operator.method == "fast":
+        report("preconditioner", 0, 1)
+        preconditioner = LocalInverse(operator) if problem.is_simple else SystemPreconditioner(operator)
+        report("preconditioner", 1, 1)
+    return operator, preconditioner
+
+
+def _solve(operator, rhs, tol, preconditioner, report, maxiter: int = 20):
+    return solve_linear(operator, rhs, tol=tol, preconditioner=preconditioner, restart=50, maxiter=maxiter,
+                        callback=lambda it, res: report("iterations", it, 50 * maxiter))
+
+
+@dataclass(frozen=True, repr=False)
+class Excitation:
+    """The charge for given conductor voltages (floating conductors at given net charge).
+
+    sigma : (N,) C/m^2, total surface charge density on every panel
+    potentials : (K,) volts of every conductor (computed for floating ones)
+    free_charge : (K,) coulombs on every conductor
+    method, converged, iterations, residual : from the linear solve
+    """
+
+    sigma: np.ndarray
+    potentials: np.ndarray
+    free_charge: np.ndarray
+    method: str
+    converged: bool
+    iterations: int
+    residual: float
+
+    def __repr__(self) -> str:
+        return (f"Excitation({len(self.sigma)} panels, potentials {np.round(self.potentials, 6).tolist()} V, "
+                f"{self.method})")
+
+
+def solve_voltages(problem: Problem, voltages, net_charge=None, *, method: str = "auto", tol: float = 1e-8,
+                   progress=None) -> Excitation:
+    """Surface charge for applied voltages.
+
+    Parameters
+    ----------
+    problem : see :class:`~tricharge.bem.system.Problem`
+    voltages : (K,) volts per conductor (ignored for floating conductors)
+    net_charge : (K,) coulombs per floating conductor (default 0; ignored for others)
+    """
+    voltages = np.asarray(voltages, dtype=np.float64)
+    charge = np.zeros(problem.n_conductors) if net_charge is None else np.asarray(net_charge, dtype=np.float64)
+    report = progress or (lambda stage, done, total: None)
+    operator, preconditioner = _prepare(problem, method, tol, report)
+    n = len(problem.panels)
+    rhs = np.zeros((operator.shape[0], 1))
+    driven = problem.is_conductor_panel & ~problem.floating[np.maximum(problem.conductor, 0)]
+    rhs[:n][driven, 0] = voltages[problem.conductor[driven]]
+    rhs[n:, 0] = charge[problem.floating_index] / FOUR_PI_EPS0
+    solution = _solve(operator, rhs, tol, preconditioner, report)
+    sigma = solution.x[:n, 0] * FOUR_PI_EPS0
+    potentials = voltages.copy()
+    potentials[problem.floating_index] = solution.x[n:, 0]
+    free = np.zeros(problem.n_conductors)
+    on = problem.is_conductor_panel
+    np.add.at(free, problem.conductor[on], problem.permittivity[on] * sigma[on] * problem.panels.areas[on])
+    return Excitation(sigma, potentials, free, operator.method, solution.converged, solution.iterations,
+                      solution.residual)
 
 
 #: Panel count up to which "auto" stores the general system. Its matrix-free form has

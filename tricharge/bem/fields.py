@@ -15,6 +15,7 @@ from .capacitance import EPS0, FOUR_PI_EPS0
 from .fmm import potentials
 from .operators import NearFieldPolicy, far_rule_pairs, near_pairs, pair_integrals
 from .panels import Panels
+from .system import GENERAL_FAST_POLICY, _near_rows, gauss_self_terms
 
 #: Multipole precision for field evaluation (well below the 1 % checks made on fields).
 FIELD_FMM_EPS = 1e-7
@@ -44,24 +45,83 @@ def _evaluate(points, panels, sigma, policy, kind):
     return total
 
 
-def potential_at(points, panels: Panels, sigma, *, policy: NearFieldPolicy | None = None) -> np.ndarray:
+def _with_images(points, panels, sigma, policy, kind, images):
+    total = _evaluate(points, panels, sigma, policy, kind)
+    if images is not None:  # the plane's images carry the opposite charge
+        total = total - _evaluate(points, images, sigma, policy, kind)
+    return total
+
+
+def potential_at(points, panels: Panels, sigma, *, policy: NearFieldPolicy | None = None,
+                 images: Panels | None = None) -> np.ndarray:
     """Potential (M,) volts at ``points`` (M, 3) metres of the charge density ``sigma`` (N,) C/m^2.
 
     Accurate close to and on the surface: pairs within a few panel sizes use the
     closed-form triangle integral. On a conductor panel's centroid it reproduces the
-    collocation potential.
+    collocation potential. ``images``: the panels mirrored in a ground plane, whose
+    charge is the negative of ``sigma``.
     """
-    return _evaluate(points, panels, sigma, policy, "potential") / FOUR_PI_EPS0
+    return _with_images(points, panels, sigma, policy, "potential", images) / FOUR_PI_EPS0
 
 
-def field_at(points, panels: Panels, sigma, *, policy: NearFieldPolicy | None = None) -> np.ndarray:
+def field_at(points, panels: Panels, sigma, *, policy: NearFieldPolicy | None = None,
+             images: Panels | None = None) -> np.ndarray:
     """Electric field (M, 3) V/m at ``points`` (M, 3) metres of the density ``sigma`` (N,) C/m^2.
 
     Points must not lie on an edge of a panel (the field of a uniform panel is
     logarithmically singular there). On a panel's face the normal part is the
-    principal value, the mean of the two sides.
+    principal value, the mean of the two sides. ``images`` as in :func:`potential_at`.
     """
-    return _evaluate(points, panels, sigma, policy, "field") / FOUR_PI_EPS0
+    return _with_images(points, panels, sigma, policy, "field", images) / FOUR_PI_EPS0
+
+
+@dataclass(frozen=True, repr=False)
+class SurfaceField:
+    """The field on every panel, V/m. On conductor panels the field is normal:
+    ``outside = sigma / eps0`` (outward normal), ``inside = 0``, ``tangential = 0``. On
+    interface panels ``outside`` and ``inside`` are the normal components on the side the
+    normal points into and behind it, and ``tangential`` the magnitude of the tangential
+    field (continuous across; insulator surfaces flash over along it).
+
+    outside, inside, tangential, magnitude : (N,) V/m; magnitude is the larger |E| of the
+    two sides
+    free_charge_density : (N,) C/m^2 on conductor panels (0 on interfaces)
+    """
+
+    outside: np.ndarray
+    inside: np.ndarray
+    tangential: np.ndarray
+    magnitude: np.ndarray
+    free_charge_density: np.ndarray
+
+    def __repr__(self) -> str:
+        return f"SurfaceField({len(self.magnitude)} panels, max |E| {self.magnitude.max():.4g} V/m)"
+
+
+def surface_field(problem, sigma, *, policy: NearFieldPolicy | None = None) -> SurfaceField:
+    """Surface fields of a solved charge layer ``sigma`` (N,) C/m^2 on a
+    :class:`~tricharge.bem.system.Problem`."""
+    panels = problem.panels
+    sigma = np.asarray(sigma, dtype=np.float64)
+    n = len(panels)
+    outside, inside, tangential = np.zeros(n), np.zeros(n), np.zeros(n)
+    on = problem.is_conductor_panel
+    outside[on] = sigma[on] / EPS0
+    rows = np.flatnonzero(~on)
+    if len(rows):
+        e = field_at(panels.centroids[rows], panels, sigma, policy=policy, images=problem.images)
+        normals = panels.normals[rows]
+        normal = np.einsum("md,md->m", e, normals)
+        # the curvature a flat panel misses: the same Gauss self term the solve used
+        near = _near_rows(panels.centroids[rows], panels, GENERAL_FAST_POLICY, "field", normals)
+        members, self_terms = gauss_self_terms(panels, rows, near, FIELD_FMM_EPS)
+        normal[members] += self_terms * sigma[rows[members]] / FOUR_PI_EPS0
+        outside[rows] = normal + sigma[rows] / (2.0 * EPS0)
+        inside[rows] = normal - sigma[rows] / (2.0 * EPS0)
+        tangential[rows] = np.linalg.norm(e - normal[:, None] * normals, axis=1)
+    magnitude = np.hypot(np.maximum(np.abs(outside), np.abs(inside)), tangential)
+    free = np.where(on, problem.permittivity * sigma, 0.0)
+    return SurfaceField(outside, inside, tangential, magnitude, free)
 
 
 @dataclass(frozen=True)
@@ -123,3 +183,74 @@ def gauss_check(panels: Panels, sigma, center, radius: float, *, eps_r: float = 
     enclosed = float(np.sum(charges[inside]))
     scale = abs(enclosed) if enclosed != 0 else float(np.sum(np.abs(charges)))  # empty sphere: relative to all charge
     return GaussCheck(tuple(map(float, center)), float(radius), flux_charge, enclosed, (flux_charge - enclosed) / scale)
+
+
+#: Panels with an edge whose dihedral angle exceeds this (degrees) sit on a sharp feature
+#: (engineering judgement, common practice, no source).
+SHARP_ANGLE = 30.0
+
+
+def edge_sharpness(panels: Panels) -> np.ndarray:
+    """(N,) largest angle (degrees) between a panel's normal and its neighbours' across
+    its edges; 180 on a free edge of an open sheet (a knife edge)."""
+    t = panels.triangles
+    directed = np.sort(np.stack([t, np.roll(t, -1, axis=1)], axis=2).reshape(-1, 2), axis=1)
+    _, inverse, count = np.unique(directed, axis=0, return_inverse=True, return_counts=True)
+    inverse = inverse.ravel()
+    owner = np.repeat(np.arange(len(t)), 3)
+    order = np.argsort(inverse, kind="stable")
+    sharp = np.zeros(len(t))
+    free = count[inverse] == 1
+    sharp[owner[free]] = 180.0
+    pairs = order[count[inverse[order]] == 2].reshape(-1, 2)
+    a, b = owner[pairs[:, 0]], owner[pairs[:, 1]]
+    cosine = np.clip(np.einsum("pd,pd->p", panels.normals[a], panels.normals[b]), -1.0, 1.0)
+    angle = np.degrees(np.arccos(cosine))
+    np.maximum.at(sharp, a, angle)
+    np.maximum.at(sharp, b, angle)
+    return sharp
+
+
+@dataclass(frozen=True)
+class HotSpot:
+    """A local field maximum on one part.
+
+    group : part index (as given to :func:`hot_spots`); rank : 1 = highest on the part
+    panel : panel index; location : (3,) metres (the panel centroid)
+    field : |E| V/m; panel_size : metres
+    sharp_angle : degrees (see :func:`edge_sharpness`); sharp : above SHARP_ANGLE
+    """
+
+    group: int
+    rank: int
+    panel: int
+    location: tuple[float, float, float]
+    field: float
+    panel_size: float
+    sharp_angle: float
+    sharp: bool
+
+
+def hot_spots(panels: Panels, magnitude, groups, *, top: int = 5, separation: float = 3.0) -> list[HotSpot]:
+    """The ``top`` highest field values on each group of panels, at least
+    ``separation`` panel sizes apart so one peak is not listed many times.
+
+    Parameters
+    ----------
+    panels : the panels; magnitude : (N,) |E| V/m; groups : (N,) part index, -1 to skip
+    """
+    magnitude = np.asarray(magnitude, dtype=np.float64)
+    groups = np.asarray(groups)
+    sharpness = edge_sharpness(panels)
+    spots = []
+    for g in np.unique(groups[groups >= 0]):
+        chosen = []
+        for j in np.flatnonzero(groups == g)[np.argsort(-magnitude[groups == g], kind="stable")]:
+            c = panels.centroids[j]
+            if all(np.linalg.norm(c - panels.centroids[k]) > separation * panels.sizes[j] for k in chosen):
+                chosen.append(j)
+                spots.append(HotSpot(int(g), len(chosen), int(j), tuple(map(float, c)), float(magnitude[j]),
+                                     float(panels.sizes[j]), float(sharpness[j]), bool(sharpness[j] > SHARP_ANGLE)))
+            if len(chosen) == top:
+                break
+    return spots

@@ -182,6 +182,57 @@ def _near_rows(targets, panels: Panels, policy: NearFieldPolicy, kind: str, norm
     return sparse.csr_matrix((values, (i, j)), shape=(len(targets), len(panels)))
 
 
+def gauss_self_terms(panels: Panels, rows: np.ndarray, near, eps: float = 1e-6):
+    """Self terms of the normal-field operator on closed interface pieces (matrix-free
+    form of :func:`_gauss_diagonal`).
+
+    Parameters
+    ----------
+    panels : all panels; ``rows`` (R,) the interface panels
+    near : sparse (R, N) near corrections of the normal field for those rows
+        (:func:`_near_rows`, without images)
+    eps : multipole precision
+
+    Returns
+    -------
+    members : indices into ``rows`` of panels on closed pieces; values : their self terms
+    """
+    from ..mesh import connected_components, edge_use
+    from .fmm import _fmm3dpy
+
+    if not len(rows):
+        return np.zeros(0, np.int64), np.zeros(0)
+    local = panels.triangles[rows]
+    pieces = connected_components(local)
+    areas = panels.areas[rows]
+    found, values = [], []
+    for p in range(pieces.max() + 1):
+        members = np.flatnonzero(pieces == p)
+        _, count, _ = edge_use(local[members])
+        if not np.all(count == 2):
+            continue
+        # flux of every panel j of the piece through it: far part by dipoles A_i n_i at c_i
+        dipoles = (panels.normals[rows[members]] * areas[members, None]).T
+        sources = panels.centroids[rows[members]]
+        if len(members) ** 2 <= 4e6:
+            diff = sources[None, :, :] - sources[:, None, :]  # [j, i] = c_i - c_j
+            r = np.linalg.norm(diff, axis=2)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                kernel = np.where(r > 0, np.einsum("jid,di->ji", diff, dipoles) / r**3, 0.0)
+            far = areas[members] * kernel.sum(axis=1)
+        else:
+            out = _fmm3dpy().lfmm3d(eps=eps, sources=np.ascontiguousarray(sources.T),
+                                    dipvec=np.ascontiguousarray(dipoles), pg=1)
+            far = -areas[members] * 4.0 * np.pi * out.pot  # fmm3dpy: v . (c_j - c_i) / (4 pi r^3)
+        sub = near[members][:, rows[members]]
+        flux = far + np.asarray(sub.T @ areas[members]).ravel() - areas[members] * sub.diagonal()
+        found.append(members)
+        values.append((2.0 * np.pi * areas[members] - flux) / areas[members])
+    if not found:
+        return np.zeros(0, np.int64), np.zeros(0)
+    return np.concatenate(found), np.concatenate(values)
+
+
 #: Integration rules of :class:`FastSystem`: one point per panel beyond 8 panel sizes.
 #: The normal-field rows need the wider correction zone: on a sphere in a dielectric
 #: shell (4,160 panels) the capacitance differed from the dense path's by 1.9e-4 with
@@ -229,37 +280,9 @@ class FastSystem:
         self.dtype = np.dtype(np.float64)
 
     def _add_gauss_diagonal(self) -> None:
-        from ..mesh import connected_components, edge_use
-        from .fmm import _fmm3dpy
-
-        panels, rows = self.panels, self.rows_i
-        if not len(rows):
-            return
-        local = panels.triangles[rows]
-        pieces = connected_components(local)
-        areas = panels.areas[rows]
-        near = self.near_i.tocsr()
-        for p in range(pieces.max() + 1):
-            members = np.flatnonzero(pieces == p)
-            _, count, _ = edge_use(local[members])
-            if not np.all(count == 2):
-                continue
-            # flux of every panel j of the piece through it: far part by dipoles A_i n_i at c_i
-            dipoles = (panels.normals[rows[members]] * areas[members, None]).T
-            sources = panels.centroids[rows[members]]
-            if len(members) ** 2 <= 4e6:
-                diff = sources[None, :, :] - sources[:, None, :]  # [j, i] = c_i - c_j
-                r = np.linalg.norm(diff, axis=2)
-                with np.errstate(divide="ignore", invalid="ignore"):
-                    kernel = np.where(r > 0, np.einsum("jid,di->ji", diff, dipoles) / r**3, 0.0)
-                far = areas[members] * kernel.sum(axis=1)
-            else:
-                out = _fmm3dpy().lfmm3d(eps=self.eps, sources=np.ascontiguousarray(sources.T),
-                                        dipvec=np.ascontiguousarray(dipoles), pg=1)
-                far = -areas[members] * 4.0 * np.pi * out.pot  # fmm3dpy: v . (c_j - c_i) / (4 pi r^3)
-            sub = near[members][:, rows[members]]
-            flux = far + np.asarray(sub.T @ areas[members]).ravel() - areas[members] * sub.diagonal()
-            self.near_i[members, rows[members]] = (2.0 * np.pi * areas[members] - flux) / areas[members]
+        members, values = gauss_self_terms(self.panels, self.rows_i, self.near_i.tocsr(), self.eps)
+        if len(members):
+            self.near_i[members, self.rows_i[members]] = values
 
     def matmat(self, x):
         from .fmm import potentials

@@ -123,3 +123,53 @@ def survey_report(model, *, version: str) -> str:
     if not model.problems:
         lines += ["", "no errors: the model can be solved"]
     return "\n".join(lines)
+
+
+#: Printed with every field report (engineering practice; the tool does not replace it).
+CAUTIONS = """Cautions for high-voltage use: these are computed fields on an idealised geometry.
+  - Keep generous margins: surface contamination, humidity, altitude (lower air density),
+    surface roughness, burrs, ageing and transients all lower the real withstand.
+  - Sharp edges and corners have singular fields in theory: model the real radius there.
+  - Withstand strengths you give are yours to justify; follow the applicable codes and
+    standards, and have the design checked by a qualified engineer."""
+
+
+def _kv_per_mm(value: float) -> str:
+    return f"{value / 1e6:.4g} kV/mm"
+
+
+def field_report(result, model, *, source: str, version: str) -> str:
+    """The text the ``field`` command prints."""
+    from ..units import format_eng, metres_per
+
+    scale, unit = metres_per(model.unit), model.unit
+    lines = [f"tricharge {version}: {source} (unit {unit}), {plural(len(result.conductors), 'conductor')}, "
+             f"{plural(model.n_panels, 'panel')}, {result.method} solve"]
+    rows = [["conductor", "potential", "free charge"]]
+    for name, v, q, c in zip(result.conductors, result.potentials, result.free_charge, model.conductors):
+        rows.append([name, format_eng(v, "V", keep_zeros=False) + (" (floating)" if c.floating else ""),
+                     format_eng(q, "C")])
+    lines += [""] + _table(rows, right={1, 2})
+    rows = [["part", "#", "|E|", "where (" + unit + ")", "panel " + unit, "feature"]]
+    for s in result.spots:
+        where = ", ".join(f"{x / scale:.4g}" for x in s.location)
+        feature = f"sharp ({s.sharp_angle:.0f} deg)" if s.sharp else ""
+        rows.append([result.parts[s.group], str(s.rank), _kv_per_mm(s.field), where, f"{s.panel_size / scale:.3g}",
+                     feature])
+    lines += ["", "Highest surface fields (|E| on the surface, the larger side at interfaces):"]
+    lines += _table(rows, right={1, 2, 4})
+    if any(s.sharp for s in result.spots):
+        lines += ["", "Peaks marked sharp sit where neighbouring panels meet at more than 30 degrees: an edge,",
+                  "a corner or a curve too coarse for its mesh. The true field there is higher than the panel",
+                  "value and grows as the mesh is refined: model the real radius (and mesh it with panels",
+                  "several times smaller than that radius) before trusting the number."]
+    if result.utilisation is not None:
+        lines += ["", f"Gap between the two electrodes: {result.gap / scale:.4g} {unit}; utilisation factor "
+                      f"E_mean/E_max = {result.utilisation:.3f} (1 for a uniform field)."]
+    if result.margins:
+        lines += ["", "Margins against the withstand strengths given:"]
+        for medium, e_max, strength in result.margins:
+            verdict = "exceeded" if e_max >= strength else f"margin {strength / e_max:.2f}x"
+            lines.append(f"  {medium}: peak {_kv_per_mm(e_max)} against {_kv_per_mm(strength)} ({verdict})")
+    lines += ["", CAUTIONS]
+    return "\n".join(lines)
