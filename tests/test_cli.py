@@ -173,3 +173,38 @@ def test_field_needs_a_voltage_for_every_driven_conductor(tmp_path, capsys):
     assert main(["field", str(path)]) == 2
     assert "conductor 'c1' has no voltage; give one with --volts c1=VALUE" in capsys.readouterr().err
     assert main(["field", str(path), "--volts", "c1=1kV", "-q"]) == 0
+
+
+def test_field_samples_probe_line_and_section(tmp_path, capsys):
+    import csv
+    import xml.etree.ElementTree as ElementTree
+
+    samples, image = tmp_path / "s.csv", tmp_path / "s.vti"
+    code = main(["field", str(DATA_HV), "-q", "--probe", "0,0,95", "--probe", "0,0,20",
+                 "--line", "0,0,5.5:0,0,34.5:12", "--section", "y=0", "--grid", "21",
+                 "--samples", str(samples), "--vtk", str(image)])
+    assert code == 0, capsys.readouterr().err
+    rows = list(csv.DictReader(samples.open()))
+    assert [r["kind"] for r in rows].count("line") == 12 and [r["kind"] for r in rows].count("section") == 21 * 21
+    inside_rod = rows[0]  # (0, 0, 95) mm is inside the 50 kV rod: the potential there is the rod's
+    assert float(inside_rod["potential_V"]) == pytest.approx(50e3, rel=0.005)
+    gap = [float(r["potential_V"]) for r in rows if r["kind"] == "line"]
+    assert gap == sorted(gap) and 0 < gap[0] < gap[-1] < 50e3  # rising from the disk to the rod
+    root = ElementTree.parse(image).getroot()
+    assert root.find("ImageData").get("WholeExtent") == "0 20 0 0 0 20"
+    arrays = {a.get("Name"): len(a.text.split()) for a in root.iter("DataArray")}
+    assert arrays == {"potential_V": 441, "E_V_per_m": 3 * 441, "E_magnitude_V_per_m": 441}
+
+
+@pytest.mark.parametrize("args, message", [
+    (["--vtk", "{tmp}/x.vti"], "--vtk writes the plane section: give --section too"),
+    (["--probe", "1,2,3"], "samples asked for but no output"),
+    (["--probe", "1,2", "--samples", "{tmp}/s.csv"], "--probe '1,2': expected 3 numbers"),
+    (["--section", "w=3", "--samples", "{tmp}/s.csv"], "write AXIS=VALUE with AXIS x, y or z"),
+    (["--line", "0,0,0", "--samples", "{tmp}/s.csv"], "write X0,Y0,Z0:X1,Y1,Z1"),
+])
+def test_field_sampling_options_fail_cleanly(tmp_path, capsys, args, message):
+    assert main(["field", str(DATA_HV)] + [a.format(tmp=tmp_path) for a in args]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and message in err
+    assert list(tmp_path.iterdir()) == []

@@ -11,6 +11,7 @@ from importlib import resources
 from pathlib import Path
 
 import click
+import numpy as np
 
 from . import __version__
 from .errors import TrichargeError
@@ -134,29 +135,48 @@ def _pairs(values, parse, what: str) -> dict:
               help="Withstand field strength of a medium, e.g. air=3kV/mm, for margins (repeatable).")
 @click.option("--top", type=click.IntRange(1, 100), default=5, show_default=True,
               help="Hot spots listed per conductor and interface.")
+@click.option("--probe", multiple=True, metavar="X,Y,Z", help="Sample the field at this point (repeatable).")
+@click.option("--line", "lines", multiple=True, metavar="X0,Y0,Z0:X1,Y1,Z1[:N]",
+              help="Sample N points (default 101) along a line (repeatable).")
+@click.option("--section", metavar="AXIS=VALUE", help="Sample a plane section, e.g. z=40, across the model.")
+@click.option("--grid", type=click.IntRange(2, 1001), default=81, show_default=True,
+              help="Points per side of the section.")
+@click.option("--samples", "samples_path", type=click.Path(dir_okay=False, path_type=Path),
+              help="Write the samples (probes, lines, section) as CSV.")
+@click.option("--vtk", "vtk_path", type=click.Path(dir_okay=False, path_type=Path),
+              help="Write the section as a VTK image (.vti) for ParaView.")
 @_json_option
 @_method_option
 @_quiet_option
-def field(input_path: Path, unit: str | None, volts, withstand, top: int, json_path: Path | None, method: str,
-          quiet: bool):
+def field(input_path: Path, unit: str | None, volts, withstand, top: int, probe, lines, section, grid: int,
+          samples_path: Path | None, vtk_path: Path | None, json_path: Path | None, method: str, quiet: bool):
     """Surface fields and hot spots of INPUT with applied voltages (model file or --volts)."""
+    from .errors import OptionError
     from .io.export import check_writable, write_atomic
     from .io.modelfile import load
     from .io.text import field_report
     from .pipeline import solve_field
     from .units import parse_field_strength, parse_quantity
 
-    if json_path is not None:
-        check_writable(json_path)
+    for path in (json_path, samples_path, vtk_path):
+        if path is not None:
+            check_writable(path)
     voltages = _pairs(volts, lambda v, what: parse_quantity(v, "V", what=what), "--volts")
     strengths = _pairs(withstand, parse_field_strength, "--withstand")
+    if vtk_path is not None and section is None:
+        raise OptionError("--vtk writes the plane section: give --section too, e.g. --section z=0")
     model = load(input_path, unit=unit)
+    requests = _sample_requests(model, probe, lines, section, grid)
+    if requests and samples_path is None and vtk_path is None:
+        raise OptionError("samples asked for but no output: add --samples FILE.csv (or --vtk for a section)")
     progress = _Progress(quiet)
     try:
         result = solve_field(model, voltages, method=method, top=top, withstand=strengths, progress=progress)
     finally:
         progress.close()
     _echo(field_report(result, model, source=input_path.name, version=__version__), quiet)
+    if requests:
+        _write_samples(result, model, requests, samples_path, vtk_path, quiet)
     if json_path is not None:
         import json
 
@@ -170,6 +190,72 @@ def field(input_path: Path, unit: str | None, volts, withstand, top: int, json_p
                 "input_file": str(input_path), "tricharge_version": __version__}
         write_atomic(json_path, json.dumps(data, indent=2) + "\n")
         _echo(f"\nwrote {json_path}", quiet)
+
+
+def _numbers(text: str, count: int, what: str) -> list[float]:
+    from .errors import OptionError
+
+    try:
+        values = [float(x) for x in text.split(",")]
+    except ValueError:
+        values = []
+    if len(values) != count:
+        raise OptionError(f"{what} {text!r}: expected {count} numbers separated by commas")
+    return values
+
+
+def _sample_requests(model, probes, lines, section, grid) -> list:
+    """[(kind, points (M, 3) metres, image geometry or None)] from the sampling options."""
+    from .errors import OptionError
+    from .pipeline import line_points, section_grid
+    from .units import metres_per
+
+    scale = metres_per(model.unit)
+    requests = []
+    if probes:
+        requests.append(("probe", np.array([_numbers(p, 3, "--probe") for p in probes]) * scale, None))
+    for text in lines:
+        parts = text.split(":")
+        if len(parts) not in (2, 3):
+            raise OptionError(f"--line {text!r}: write X0,Y0,Z0:X1,Y1,Z1 or X0,Y0,Z0:X1,Y1,Z1:N")
+        count = int(_numbers(parts[2], 1, "--line count")[0]) if len(parts) == 3 else 101
+        if count < 2:
+            raise OptionError(f"--line {text!r}: give at least 2 points")
+        start, end = (np.array(_numbers(p, 3, "--line")) * scale for p in parts[:2])
+        requests.append(("line", line_points(start, end, count), None))
+    if section is not None:
+        axis, sep, value = section.partition("=")
+        if not sep or axis.strip() not in ("x", "y", "z"):
+            raise OptionError(f"--section {section!r}: write AXIS=VALUE with AXIS x, y or z, e.g. z=40")
+        points, origin, spacing, dims = section_grid(model, axis.strip(), _numbers(value, 1, "--section")[0] * scale,
+                                                     grid)
+        requests.append(("section", points, (origin, spacing, dims)))
+    return requests
+
+
+def _write_samples(result, model, requests, samples_path, vtk_path, quiet) -> None:
+    from .io.export import image_vti, samples_csv, write_atomic
+    from .units import metres_per
+
+    scale = metres_per(model.unit)
+    kinds, points, potentials, fields = [], [], [], []
+    for kind, pts, image in requests:
+        phi, e = result.sample(pts)
+        kinds += [kind] * len(pts)
+        points.append(pts)
+        potentials.append(phi)
+        fields.append(e)
+        if image is not None and vtk_path is not None:
+            origin, spacing, dims = image
+            spacing = np.where(dims > 1, spacing / scale, 1.0)
+            write_atomic(vtk_path, image_vti(origin / scale, spacing, dims,
+                                             {"potential_V": phi, "E_V_per_m": e,
+                                              "E_magnitude_V_per_m": np.linalg.norm(e, axis=1)}))
+            _echo(f"wrote {vtk_path}", quiet)
+    if samples_path is not None:
+        write_atomic(samples_path, samples_csv(kinds, np.vstack(points), np.concatenate(potentials),
+                                               np.vstack(fields), model.unit, scale))
+        _echo(f"wrote {samples_path}", quiet)
 
 
 @cli.command()

@@ -7,7 +7,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .bem.capacitance import Result, solve_capacitance, solve_voltages
-from .bem.fields import hot_spots, surface_field
+from .bem.fields import field_at, hot_spots, potential_at, surface_field
 from .bem.panels import make_panels
 from .bem.system import Problem
 from .errors import OptionError
@@ -74,6 +74,16 @@ class FieldResult:
     method: str
     iterations: int
     residual: float
+    problem: Problem
+    sigma: np.ndarray
+
+    def sample(self, points) -> tuple[np.ndarray, np.ndarray]:
+        """Potential (M,) V and field (M, 3) V/m at ``points`` (M, 3) metres, anywhere:
+        accurate within a panel size of the surface (closed-form near terms)."""
+        points = np.atleast_2d(np.asarray(points, dtype=np.float64))
+        kwargs = dict(images=self.problem.images)
+        return (potential_at(points, self.problem.panels, self.sigma, **kwargs),
+                field_at(points, self.problem.panels, self.sigma, **kwargs))
 
     def __repr__(self) -> str:
         peak = max((s.field for s in self.spots), default=0.0)
@@ -120,7 +130,8 @@ def solve_field(model: Model, voltages: dict[str, float] | None = None, *, metho
     margins = _margins(model, surface, withstand or {})
     gap, utilisation = _utilisation(model, volts, surface)
     return FieldResult(model.conductor_names, excitation.potentials, excitation.free_charge, surface, parts, spots,
-                       margins, gap, utilisation, excitation.method, excitation.iterations, excitation.residual)
+                       margins, gap, utilisation, excitation.method, excitation.iterations, excitation.residual,
+                       problem, excitation.sigma)
 
 
 def _panel_media(model: Model):
@@ -160,3 +171,29 @@ def _utilisation(model: Model, volts: np.ndarray, surface):
     gap = float(cKDTree(b).query(a)[0].min())
     e_max = float(surface.magnitude[model.conductor_labels >= 0].max())
     return gap, abs(volts[driven[0]] - volts[driven[1]]) / gap / e_max
+
+
+def line_points(start, end, count: int) -> np.ndarray:
+    """(count, 3) points evenly spaced from ``start`` to ``end`` (both included)."""
+    s = np.linspace(0.0, 1.0, int(count))[:, None]
+    return np.asarray(start, float) + s * (np.asarray(end, float) - np.asarray(start, float))
+
+
+def section_grid(model: Model, axis: str, value: float, count: int, margin: float = 0.2):
+    """A plane section ``axis = value`` (metres) across the model's bounding box plus
+    ``margin`` of its size on each side.
+
+    Returns points (count*count, 3) in VTK order (first in-plane axis fastest), and the
+    image's origin (3,), spacing (3,) and dimensions (3,), all in metres.
+    """
+    k = "xyz".index(axis)
+    lo, hi = model.vertices.min(axis=0), model.vertices.max(axis=0)
+    pad = margin * (hi - lo)
+    lo, hi = lo - pad, hi + pad
+    lo[k] = hi[k] = value
+    dims = np.where(np.arange(3) == k, 1, int(count))
+    axes = [np.linspace(lo[d], hi[d], dims[d]) for d in range(3)]
+    zz, yy, xx = np.meshgrid(axes[2], axes[1], axes[0], indexing="ij")
+    points = np.column_stack([xx.ravel(), yy.ravel(), zz.ravel()])
+    spacing = np.where(dims > 1, (hi - lo) / np.maximum(dims - 1, 1), 1.0)
+    return points, lo, spacing, dims

@@ -8,6 +8,8 @@ import os
 import tempfile
 from pathlib import Path
 
+import numpy as np
+
 from ..errors import InputFileError
 
 
@@ -50,3 +52,42 @@ def result_json(result, **provenance) -> str:
 def write_json(path, result, **provenance) -> None:
     """Write :func:`result_json` to ``path`` atomically."""
     write_atomic(path, result_json(result, **provenance))
+
+
+def samples_csv(kinds, points, potential, field, unit: str, scale: float) -> str:
+    """CSV text of sampled potentials and fields.
+
+    kinds : (M,) labels ("probe", "line", "section"); points : (M, 3) metres;
+    potential : (M,) V; field : (M, 3) V/m; coordinates are written in ``unit``
+    (``scale`` metres per unit).
+    """
+    import io
+
+    buffer = io.StringIO()
+    buffer.write(f"kind,x_{unit},y_{unit},z_{unit},potential_V,Ex_V_per_m,Ey_V_per_m,Ez_V_per_m,E_V_per_m\n")
+    magnitude = np.linalg.norm(field, axis=1)
+    for kind, p, phi, e, m in zip(kinds, points / scale, potential, field, magnitude):
+        buffer.write(f"{kind},{p[0]:.9g},{p[1]:.9g},{p[2]:.9g},{phi:.9g},{e[0]:.9g},{e[1]:.9g},{e[2]:.9g},{m:.9g}\n")
+    return buffer.getvalue()
+
+
+def image_vti(origin, spacing, dims, arrays: dict) -> str:
+    """VTK XML ImageData (.vti, ASCII) text for ParaView and pyvista.
+
+    origin, spacing : (3,) in the unit the user works in; dims : (3,) point counts;
+    arrays : name -> (prod(dims),) or (prod(dims), 3) point data in VTK's x-fastest order.
+    """
+    extent = " ".join(f"0 {d - 1}" for d in dims)
+    lines = ['<?xml version="1.0"?>',
+             '<VTKFile type="ImageData" version="0.1" byte_order="LittleEndian">',
+             f'<ImageData WholeExtent="{extent}" Origin="{" ".join(f"{o:.9g}" for o in origin)}" '
+             f'Spacing="{" ".join(f"{s:.9g}" for s in spacing)}">',
+             f'<Piece Extent="{extent}">', "<PointData>"]
+    for name, values in arrays.items():
+        values = np.asarray(values, dtype=np.float64)
+        components = 1 if values.ndim == 1 else values.shape[1]
+        lines.append(f'<DataArray type="Float64" Name="{name}" NumberOfComponents="{components}" format="ascii">')
+        lines.append(" ".join(f"{x:.9g}" for x in values.ravel()))
+        lines.append("</DataArray>")
+    lines += ["</PointData>", "</Piece>", "</ImageData>", "</VTKFile>", ""]
+    return "\n".join(lines)
