@@ -208,3 +208,12 @@ def test_field_sampling_options_fail_cleanly(tmp_path, capsys, args, message):
     err = capsys.readouterr().err
     assert err.count("\n") == 1 and message in err
     assert list(tmp_path.iterdir()) == []
+
+
+def test_field_json_carries_samples_and_refinement(tmp_path):
+    out = tmp_path / "f.json"
+    assert main(["field", str(DATA_HV), "-q", "--probe", "0,0,20", "--refine-peaks", "--vtk", str(tmp_path / "x.vti"),
+                 "--section", "z=20", "--grid", "5", "--json", str(out)]) == 0
+    data = json.loads(out.read_text())
+    assert [s["kind"] for s in data["samples"]].count("probe") == 1 and len(data["samples"]) == 1 + 25
+    assert {r["part"] for r in data["peak_refinement"]} == {"hv", "ground"}

@@ -145,11 +145,14 @@ def _pairs(values, parse, what: str) -> dict:
               help="Write the samples (probes, lines, section) as CSV.")
 @click.option("--vtk", "vtk_path", type=click.Path(dir_okay=False, path_type=Path),
               help="Write the section as a VTK image (.vti) for ParaView.")
+@click.option("--refine-peaks", is_flag=True,
+              help="Solve again with each part's peak region split finer and report how much the peak moved.")
 @_json_option
 @_method_option
 @_quiet_option
 def field(input_path: Path, unit: str | None, volts, withstand, top: int, probe, lines, section, grid: int,
-          samples_path: Path | None, vtk_path: Path | None, json_path: Path | None, method: str, quiet: bool):
+          samples_path: Path | None, vtk_path: Path | None, refine_peaks: bool, json_path: Path | None, method: str,
+          quiet: bool):
     """Surface fields and hot spots of INPUT with applied voltages (model file or --volts)."""
     from .errors import OptionError
     from .io.export import check_writable, write_atomic
@@ -175,8 +178,15 @@ def field(input_path: Path, unit: str | None, volts, withstand, top: int, probe,
     finally:
         progress.close()
     _echo(field_report(result, model, source=input_path.name, version=__version__), quiet)
+    rechecked, sampled = [], []
+    if refine_peaks:
+        from .io.text import refinement_report
+        from .pipeline import refine_peaks as recheck
+
+        rechecked = recheck(result, model, method=method)
+        _echo("\n" + refinement_report(rechecked), quiet)
     if requests:
-        _write_samples(result, model, requests, samples_path, vtk_path, quiet)
+        sampled = _write_samples(result, model, requests, samples_path, vtk_path, quiet)
     if json_path is not None:
         import json
 
@@ -187,6 +197,8 @@ def field(input_path: Path, unit: str | None, volts, withstand, top: int, probe,
                                "sharp_angle_deg": s.sharp_angle} for s in result.spots],
                 "utilisation": result.utilisation, "gap_m": result.gap,
                 "margins": [{"medium": m, "peak_V_per_m": e, "withstand_V_per_m": w} for m, e, w in result.margins],
+                "peak_refinement": [{"part": p, "before_V_per_m": a, "after_V_per_m": b} for p, a, b in rechecked],
+                "samples": sampled,
                 "input_file": str(input_path), "tricharge_version": __version__}
         write_atomic(json_path, json.dumps(data, indent=2) + "\n")
         _echo(f"\nwrote {json_path}", quiet)
@@ -233,7 +245,9 @@ def _sample_requests(model, probes, lines, section, grid) -> list:
     return requests
 
 
-def _write_samples(result, model, requests, samples_path, vtk_path, quiet) -> None:
+def _write_samples(result, model, requests, samples_path, vtk_path, quiet) -> list[dict]:
+    """Evaluate the requested samples, write the CSV and VTK files asked for, and return
+    the samples as records for the JSON output (coordinates in metres)."""
     from .io.export import image_vti, samples_csv, write_atomic
     from .units import metres_per
 
@@ -252,10 +266,12 @@ def _write_samples(result, model, requests, samples_path, vtk_path, quiet) -> No
                                              {"potential_V": phi, "E_V_per_m": e,
                                               "E_magnitude_V_per_m": np.linalg.norm(e, axis=1)}))
             _echo(f"wrote {vtk_path}", quiet)
+    points, potentials, fields = np.vstack(points), np.concatenate(potentials), np.vstack(fields)
     if samples_path is not None:
-        write_atomic(samples_path, samples_csv(kinds, np.vstack(points), np.concatenate(potentials),
-                                               np.vstack(fields), model.unit, scale))
+        write_atomic(samples_path, samples_csv(kinds, points, potentials, fields, model.unit, scale))
         _echo(f"wrote {samples_path}", quiet)
+    return [{"kind": k, "point_m": p.tolist(), "potential_V": float(v), "field_V_per_m": e.tolist()}
+            for k, p, v, e in zip(kinds, points, potentials, fields)]
 
 
 @cli.command()

@@ -123,8 +123,7 @@ def solve_field(model: Model, voltages: dict[str, float] | None = None, *, metho
     charge = np.array([c.net_charge for c in model.conductors])
     excitation = solve_voltages(problem, volts, charge, method=method, tol=tol, progress=progress)
     surface = surface_field(problem, excitation.sigma)
-    groups = model.conductor_labels.copy()
-    groups[model.interface_labels >= 0] = len(model.conductors) + model.interface_labels[model.interface_labels >= 0]
+    groups = _part_groups(model)
     parts = model.conductor_names + tuple(i.name for i in model.interfaces)
     spots = hot_spots(problem.panels, surface.magnitude, groups, top=top)
     margins = _margins(model, surface, withstand or {})
@@ -132,6 +131,14 @@ def solve_field(model: Model, voltages: dict[str, float] | None = None, *, metho
     return FieldResult(model.conductor_names, excitation.potentials, excitation.free_charge, surface, parts, spots,
                        margins, gap, utilisation, excitation.method, excitation.iterations, excitation.residual,
                        problem, excitation.sigma)
+
+
+def _part_groups(model: Model) -> np.ndarray:
+    """(m,) part index per triangle: conductors first, then interfaces."""
+    groups = model.conductor_labels.copy()
+    on_interface = model.interface_labels >= 0
+    groups[on_interface] = len(model.conductors) + model.interface_labels[on_interface]
+    return groups
 
 
 def _panel_media(model: Model):
@@ -197,3 +204,36 @@ def section_grid(model: Model, axis: str, value: float, count: int, margin: floa
     points = np.column_stack([xx.ravel(), yy.ravel(), zz.ravel()])
     spacing = np.where(dims > 1, (hi - lo) / np.maximum(dims - 1, 1), 1.0)
     return points, lo, spacing, dims
+
+
+def refine_peaks(result: FieldResult, model: Model, *, radius_panels: float = 4.0, method: str = "auto",
+                 tol: float = 1e-8):
+    """Solve again with the panels around every rank-1 hot spot split into four, and
+    return [(part name, old peak V/m, new peak V/m)] — how much each peak moved.
+
+    A peak that grows markedly under refinement sits on a singular feature (an edge or
+    corner): its value is a property of the mesh, not of the design.
+    """
+    from .bem.panels import split_triangles
+
+    problem = result.problem
+    panels = problem.panels
+    peaks = [s for s in result.spots if s.rank == 1]
+    near = np.zeros(len(panels), dtype=bool)
+    for spot in peaks:
+        near |= np.linalg.norm(panels.centroids - np.array(spot.location), axis=1) < radius_panels * spot.panel_size
+    vertices, triangles, parent = split_triangles(panels.vertices, panels.triangles, near)
+    refined = Problem(make_panels(vertices, triangles, source=model.source), problem.conductor[parent],
+                      problem.permittivity[parent], problem.contrast[parent], problem.floating, problem.ground_z,
+                      problem.names)
+    charge = np.array([c.net_charge for c in model.conductors])
+    sigma = solve_voltages(refined, result.potentials, charge, method=method, tol=tol).sigma
+    magnitude = surface_field(refined, sigma).magnitude
+    groups = _part_groups(model)[parent]
+    centroids = refined.panels.centroids
+    out = []
+    for spot in peaks:
+        around = (groups == spot.group) & (
+            np.linalg.norm(centroids - np.array(spot.location), axis=1) < radius_panels * spot.panel_size)
+        out.append((result.parts[spot.group], spot.field, float(magnitude[around].max())))
+    return out

@@ -85,3 +85,19 @@ def test_sharp_features_are_flagged():
     assert [s.rank for s in spots] == [1, 2, 3] and all(s.sharp for s in spots)
     distances = [np.linalg.norm(np.subtract(a.location, b.location)) for a in spots for b in spots if a is not b]
     assert min(distances) > 3 * cube.sizes.max() * 0.99  # distinct peaks, not one corner three times
+
+
+def test_refinement_tells_singular_corners_from_smooth_peaks():
+    """A cube corner's field is infinite in theory (edges and corners of conductors:
+    Jackson, 3rd ed., section 2.11, from memory): its panel peak must grow markedly under
+    refinement, while a sphere's (uniform V/R) must not."""
+    import tricharge
+    from tricharge.pipeline import refine_peaks, solve_field
+
+    changes = {}
+    for name, mesh in (("cube", shapes.cube(1.0, 6)), ("sphere", shapes.sphere(1.0, 8))):
+        model = tricharge.Model.from_arrays(*mesh)
+        result = solve_field(model, {"c1": 1.0})
+        (_, before, after), = refine_peaks(result, model)
+        changes[name] = after / before - 1.0
+    assert changes["cube"] > 0.3 and abs(changes["sphere"]) < 0.05, changes

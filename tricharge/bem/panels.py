@@ -127,3 +127,30 @@ class Panels:
 def make_panels(vertices, triangles, *, source: str = "mesh") -> Panels:
     """Validate arrays (see :func:`tricharge.mesh.validate_surface`) and build :class:`Panels`."""
     return Panels(*validate_surface(vertices, triangles, source=source))
+
+
+def split_triangles(vertices, triangles, mask) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Split the triangles selected by ``mask`` into four at their edge midpoints.
+
+    Neighbours that are not split keep their edges, so the mesh may get hanging nodes;
+    piecewise-constant collocation does not need conforming panels.
+
+    Returns
+    -------
+    vertices : (n', 3); triangles : (m', 3); parent : (m',) index of the original
+    triangle each new one came from
+    """
+    v = np.asarray(vertices, dtype=np.float64)
+    t = np.asarray(triangles, dtype=np.int64)
+    mask = np.asarray(mask, dtype=bool)
+    chosen = t[mask]
+    edges = np.sort(np.stack([chosen, np.roll(chosen, -1, axis=1)], axis=2).reshape(-1, 2), axis=1)
+    unique, inverse = np.unique(edges, axis=0, return_inverse=True)
+    midpoints = 0.5 * (v[unique[:, 0]] + v[unique[:, 1]])
+    mid = (len(v) + inverse.ravel()).reshape(-1, 3)  # midpoint of edge k (vertex k to k+1) per triangle
+    a, b, c = chosen[:, 0], chosen[:, 1], chosen[:, 2]
+    ab, bc, ca = mid[:, 0], mid[:, 1], mid[:, 2]
+    children = np.stack([np.column_stack(x) for x in ((a, ab, ca), (ab, b, bc), (ca, bc, c), (ab, bc, ca))], axis=1)
+    new_triangles = np.vstack([t[~mask], children.reshape(-1, 3)])
+    parent = np.concatenate([np.flatnonzero(~mask), np.repeat(np.flatnonzero(mask), 4)])
+    return np.vstack([v, midpoints]), new_triangles, parent

@@ -173,3 +173,15 @@ def field_report(result, model, *, source: str, version: str) -> str:
             lines.append(f"  {medium}: peak {_kv_per_mm(e_max)} against {_kv_per_mm(strength)} ({verdict})")
     lines += ["", CAUTIONS]
     return "\n".join(lines)
+
+
+def refinement_report(rechecked) -> str:
+    """Lines for the peak refinement check: [(part, before V/m, after V/m)]."""
+    lines = ["Peak refinement check (panels around each part's peak split into four):"]
+    for part, before, after in rechecked:
+        change = after / before - 1.0
+        verdict = ("grows with the mesh: a sharp edge or corner, or a curve the mesh does not resolve; "
+                   "refine there (or model the radius) before using the value" if change > 0.1
+                   else "settled to within 10 %")
+        lines.append(f"  {part}: {_kv_per_mm(before)} -> {_kv_per_mm(after)} ({change:+.1%}), {verdict}")
+    return "\n".join(lines)
