@@ -6,6 +6,7 @@ Exit status: 0 success, 2 bad input (one line on stderr), 1 internal error.
 from __future__ import annotations
 
 import os
+import re
 import sys
 from importlib import resources
 from pathlib import Path
@@ -14,7 +15,7 @@ import click
 import numpy as np
 
 from . import __version__
-from .errors import TrichargeError
+from .errors import OptionError, TrichargeError
 from .units import LENGTH_UNITS
 
 #: Built-in demos (our own invented scenarios), files in tricharge/data/ (links to meshes/).
@@ -54,14 +55,17 @@ class _Progress:
 
 
 def _solve_and_report(path: Path, unit: str | None, json_path: Path | None, quiet: bool, method: str = "auto",
-                      tol: float = 1e-6) -> None:
+                      tol: float = 1e-6, reductions: dict | None = None, outputs: dict | None = None,
+                      form: str = "maxwell", drop_below: float = 0.0) -> None:
     from .io.export import check_writable, write_json
     from .io.modelfile import load
     from .io.text import plural, result_report
     from .pipeline import solve
 
-    if json_path is not None:
-        check_writable(json_path)
+    outputs = {k: v for k, v in (outputs or {}).items() if v is not None}
+    for target in [json_path, *outputs.values()]:
+        if target is not None:
+            check_writable(target)
     model = load(path, unit=unit)
     unit = model.unit
     _echo(f"read {path.name}: {plural(len(model.conductors), 'conductor')} ({', '.join(model.conductor_names)}), "
@@ -71,10 +75,18 @@ def _solve_and_report(path: Path, unit: str | None, json_path: Path | None, quie
         result = solve(model, method=method, tol=tol, progress=progress)
     finally:
         progress.close()
+    full = result
+    if reductions and (reductions["nets"] or reductions["grounded"] or reductions["reference"]):
+        try:
+            result = result.reduced(**reductions)
+        except ValueError as exc:
+            raise OptionError(f"{path}: {exc}") from None
     _echo(result_report(result, source=path.name, unit=unit, version=__version__), quiet)
+    provenance = _provenance(path, unit, result)
     if json_path is not None:
-        write_json(json_path, result, input_file=str(path), unit=unit, tricharge_version=__version__)
+        write_json(json_path, result, **provenance)
         _echo(f"\nwrote {json_path}", quiet)
+    _write_matrix_outputs(result, full, model, outputs, form, drop_below, provenance, quiet)
 
 
 @click.group(context_settings={"help_option_names": ["-h", "--help"]})
@@ -102,21 +114,47 @@ _tol_option = click.option("--tol", type=click.FloatRange(1e-12, 1e-2), default=
 @_json_option
 @_method_option
 @_tol_option
+@click.option("--merge", multiple=True, metavar="NET=A,B,...", help="Tie conductors into one net (repeatable).")
+@click.option("--ground", "grounded", multiple=True, metavar="NAME",
+              help="Hold a conductor at 0 V as part of the reference (repeatable).")
+@click.option("--reference", metavar="infinity|plane|NAME",
+              help="The reference node of the mutual form: infinity, the ground plane, or a conductor.")
+@click.option("--spice", "spice_path", type=click.Path(dir_okay=False, path_type=Path),
+              help="Write a SPICE subcircuit (.subckt) of the matrix.")
+@click.option("--drop-below", type=click.FloatRange(0.0, 1.0), default=0.0, show_default=True,
+              help="In the SPICE file, leave out couplings below this fraction of their row's total.")
+@click.option("--csv", "csv_path", type=click.Path(dir_okay=False, path_type=Path),
+              help="Write the matrix as CSV (conductor names as header).")
+@click.option("--npz", "npz_path", type=click.Path(dir_okay=False, path_type=Path),
+              help="Write the matrices (both forms) and names as a NumPy .npz.")
+@click.option("--form", type=click.Choice(["maxwell", "mutual"]), default="maxwell", show_default=True,
+              help="Which form the CSV holds.")
+@click.option("--vtu", "vtu_path", type=click.Path(dir_okay=False, path_type=Path),
+              help="Write the panels with their charge density and field per conductor at 1 V (.vtu).")
 @_quiet_option
-def solve(input_path: Path, unit: str | None, json_path: Path | None, method: str, tol: float, quiet: bool):
+def solve(input_path: Path, unit: str | None, json_path: Path | None, method: str, tol: float, merge, grounded,
+          reference, spice_path, drop_below, csv_path, npz_path, form, vtu_path, quiet: bool):
     """Capacitance matrix of the conductors in INPUT: a surface mesh (.msh .stl .obj .ply
     .vtk .vtu) or a model file (.toml) that says what the mesh surfaces are.
 
     In a bare mesh each Gmsh physical surface group is one conductor; without groups,
     each connected piece of surface is one, named c1, c2, ... .
     """
-    _solve_and_report(input_path, unit, json_path, quiet, method, tol)
+    outputs = dict(spice=spice_path, csv=csv_path, npz=npz_path, vtu=vtu_path)
+    nets = {}
+    for item in merge:
+        net, sep, members = item.partition("=")
+        if not sep or not net.strip() or not members.strip():
+            raise OptionError(f"--merge {item!r}: write NET=A,B")
+        nets[net.strip()] = [m.strip() for m in members.split(",")]
+    reductions = dict(nets=nets, grounded=list(grounded),
+                      reference={"plane": "ground plane"}.get(reference, reference))
+    _solve_and_report(input_path, unit, json_path, quiet, method, tol, reductions=reductions, outputs=outputs,
+                      form=form, drop_below=drop_below)
 
 
 def _pairs(values, parse, what: str) -> dict:
     """NAME=VALUE options into a dict, values parsed by ``parse``."""
-    from .errors import OptionError
-
     out = {}
     for item in values:
         name, sep, value = item.partition("=")
@@ -214,6 +252,58 @@ def _numbers(text: str, count: int, what: str) -> list[float]:
     if len(values) != count:
         raise OptionError(f"{what} {text!r}: expected {count} numbers separated by commas")
     return values
+
+
+def _provenance(path: Path, unit: str, result) -> dict:
+    """Where a result came from: tool version, input file and its SHA-256, unit, date."""
+    import datetime
+    import hashlib
+
+    digest = hashlib.sha256(path.read_bytes()).hexdigest() if path.is_file() else None
+    return {"tricharge_version": __version__, "input_file": str(path), "input_sha256": digest, "unit": unit,
+            "created": datetime.datetime.now(datetime.timezone.utc).isoformat(timespec="seconds")}
+
+
+def _write_matrix_outputs(result, full, model, outputs: dict, form: str, drop_below: float, provenance: dict,
+                          quiet: bool) -> None:
+    """SPICE, CSV, NPZ and VTU files of a solve; each written atomically."""
+    from .io.export import matrix_csv, write_atomic, write_npz, write_vtu
+
+    if "spice" in outputs:
+        from .io.spice import subcircuit
+
+        path = outputs["spice"]
+        header = (f"tricharge {provenance['tricharge_version']}: capacitance subcircuit",
+                  f"input {provenance['input_file']} sha256 {provenance['input_sha256']}",
+                  f"unit {provenance['unit']}, method {result.method}, {result.n_panels} panels, "
+                  f"created {provenance['created']}")
+        name = re.sub(r"[^A-Za-z0-9_]", "_", Path(provenance["input_file"]).stem) or "tricharge"
+        circuit = subcircuit(result.mutual, result.conductors, name=name, reference=result.reference,
+                             drop_below=drop_below, header=header)
+        write_atomic(path, circuit.text)
+        _echo(f"wrote {path} (.subckt {name})", quiet)
+        for note in circuit.renamed:
+            _echo(f"  renamed for SPICE: {note}", quiet)
+        if circuit.dropped:
+            _echo(f"  left out {circuit.dropped} couplings below {drop_below:g} of their row total, "
+                  f"{circuit.dropped_total:.4g} F in all", quiet)
+    if "csv" in outputs:
+        matrix = result.capacitance if form == "maxwell" else result.mutual
+        write_atomic(outputs["csv"], matrix_csv(result.conductors, matrix, form=form))
+        _echo(f"wrote {outputs['csv']} ({form} form, farads)", quiet)
+    if "npz" in outputs:
+        write_npz(outputs["npz"], conductors=np.array(result.conductors), maxwell=result.capacitance,
+                  mutual=result.mutual, reference=np.array(result.reference))
+        _echo(f"wrote {outputs['npz']}", quiet)
+    if "vtu" in outputs:
+        from .bem.capacitance import EPS0
+
+        data = {"conductor": full.labels, "area_m2": full.panel_areas}
+        for k, name in enumerate(full.conductors):
+            data[f"sigma_C_per_m2_{name}_at_1V"] = full.sigma[:, k]
+            data[f"E_normal_V_per_m_{name}_at_1V"] = np.where(full.labels >= 0, full.sigma[:, k] / EPS0, np.nan)
+        write_vtu(outputs["vtu"], model.vertices, model.triangles, data)
+        _echo(f"wrote {outputs['vtu']}", quiet)
 
 
 def _sample_requests(model, probes, lines, section, grid) -> list:

@@ -149,6 +149,43 @@ class Result:
         """(N, K) coulombs per volt: total charge on each panel for 1 V on conductor k."""
         return self.sigma * self.panel_areas[:, None]
 
+    def reduced(self, *, nets: dict | None = None, grounded=(), reference: str | None = None) -> "Result":
+        """The result after tying conductors into ``nets`` (name -> members), holding
+        ``grounded`` conductors at 0 V, and naming the ``reference`` ("infinity", "ground
+        plane" or a conductor, which is then grounded). Exact algebra on the Maxwell
+        matrix; per-panel densities follow (sums for nets, dropped for grounded)."""
+        import dataclasses
+
+        names, matrix = self.conductors, self.capacitance
+        projection = np.eye(len(names))
+        if nets:
+            matrix, new_names = merge_conductors(matrix, names, nets)
+            member_of = {m: net for net, members in nets.items() for m in members}
+            projection = np.array([[1.0 if member_of.get(n, n) == new else 0.0 for new in new_names] for n in names])
+            names = new_names
+        grounded = list(grounded)
+        label = self.reference
+        if reference not in (None, "infinity", "ground plane"):
+            grounded.append(reference)
+            label = reference
+        elif reference is not None:
+            if (reference == "ground plane") != (self.reference == "ground plane"):
+                raise ValueError(f"reference {reference!r} does not fit this model, whose reference is "
+                                 f"{self.reference}")
+        if grounded:
+            matrix, kept = ground_conductors(matrix, names, grounded)
+            keep = [names.index(n) for n in kept]
+            projection, names = projection[:, keep], kept
+            if label == self.reference:
+                label = "ground (" + ", ".join(grounded) + ")"
+        old_index = np.where(self.labels >= 0, self.labels, 0)
+        owner = projection[old_index]  # (N, K') membership of each panel's conductor
+        labels = np.where((self.labels >= 0) & owner.any(axis=1), owner.argmax(axis=1), -1)
+        return dataclasses.replace(self, conductors=tuple(names), capacitance=matrix, sigma=self.sigma @ projection,
+                                   labels=labels, reference=label,
+                                   checks=dataclasses.replace(check_matrix(matrix, list(names)),
+                                                              asymmetry=self.checks.asymmetry))
+
     def __repr__(self) -> str:
         diag = ", ".join(f"{n}={c:.4g} F" for n, c in zip(self.conductors, np.diag(self.capacitance)))
         return f"Result({len(self.conductors)} conductors, {self.n_panels} panels, {self.method}; C_self: {diag})"
@@ -345,3 +382,47 @@ def _general_operator(problem: Problem, method: str, tol: float, report):
         report("near field", 0, 1)
         return FastSystem(problem, tol=tol)
     raise ValueError(f"method must be auto, dense or fast, got {method!r}")
+
+
+# -- reductions of a Maxwell matrix (exact algebra) ------------------------------------
+
+def ground_conductors(maxwell: np.ndarray, names, grounded) -> tuple[np.ndarray, tuple[str, ...]]:
+    """Hold ``grounded`` conductors at 0 V: the Maxwell matrix among the others is the
+    sub-block (their charges do not depend on the grounded conductors' charges).
+
+    Returns the (K', K') matrix and the remaining names.
+    """
+    names = tuple(names)
+    missing = sorted(set(grounded) - set(names))
+    if missing:
+        raise ValueError(f"no conductor named {', '.join(missing)}; the conductors are {', '.join(names)}")
+    keep = [k for k, n in enumerate(names) if n not in set(grounded)]
+    if not keep:
+        raise ValueError("every conductor would be grounded; keep at least one")
+    return maxwell[np.ix_(keep, keep)], tuple(names[k] for k in keep)
+
+
+def merge_conductors(maxwell: np.ndarray, names, nets: dict) -> tuple[np.ndarray, tuple[str, ...]]:
+    """Tie conductors into nets at one potential: ``C' = P^T C P`` with ``P[i, j] = 1``
+    when conductor i belongs to net j. Conductors not named stay as they are.
+
+    ``nets`` maps a new net name to the conductor names it joins.
+    """
+    names = tuple(names)
+    member_of = {}
+    for net, members in nets.items():
+        for m in members:
+            if m not in names:
+                raise ValueError(f"net {net}: no conductor named {m}; the conductors are {', '.join(names)}")
+            if m in member_of:
+                raise ValueError(f"conductor {m} is in both net {member_of[m]} and net {net}")
+            member_of[m] = net
+    new_names = []
+    for n in names:
+        label = member_of.get(n, n)
+        if label not in new_names:
+            new_names.append(label)
+    projection = np.zeros((len(names), len(new_names)))
+    for i, n in enumerate(names):
+        projection[i, new_names.index(member_of.get(n, n))] = 1.0
+    return projection.T @ maxwell @ projection, tuple(new_names)

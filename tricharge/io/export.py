@@ -91,3 +91,45 @@ def image_vti(origin, spacing, dims, arrays: dict) -> str:
         lines.append("</DataArray>")
     lines += ["</PointData>", "</Piece>", "</ImageData>", "</VTKFile>", ""]
     return "\n".join(lines)
+
+
+def matrix_csv(names, matrix, *, form: str) -> str:
+    """CSV of a (K, K) matrix in farads with a header row of conductor names.
+
+    The first header cell says the form and unit, e.g. ``maxwell_F``.
+    """
+    lines = [",".join([f"{form}_F"] + list(names))]
+    for name, row in zip(names, np.asarray(matrix)):
+        lines.append(",".join([name] + [f"{x:.12g}" for x in row]))
+    return "\n".join(lines) + "\n"
+
+
+def write_npz(path, **arrays) -> None:
+    """NumPy .npz, written atomically."""
+    path = check_writable(path)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".npz", dir=path.parent)
+    os.close(fd)
+    try:
+        np.savez(tmp, **arrays)
+        os.replace(tmp, path)
+    except BaseException:
+        Path(tmp).unlink(missing_ok=True)
+        raise
+
+
+def write_vtu(path, vertices, triangles, cell_data: dict) -> None:
+    """Panels with per-panel data as a VTK unstructured grid (.vtu) through meshio,
+    written atomically. ``cell_data``: name -> (m,) or (m, 3) arrays."""
+    import meshio
+
+    path = check_writable(path)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.stem}.", suffix=".vtu", dir=path.parent)
+    os.close(fd)
+    try:
+        mesh = meshio.Mesh(np.asarray(vertices), [("triangle", np.asarray(triangles))],
+                           cell_data={k: [np.asarray(v)] for k, v in cell_data.items()})
+        meshio.write(tmp, mesh, file_format="vtu")
+        os.replace(tmp, path)
+    except BaseException:
+        Path(tmp).unlink(missing_ok=True)
+        raise

@@ -79,7 +79,7 @@ def result_report(result, *, source: str, unit: str, version: str) -> str:
         head,
         "Capacitance matrix, Maxwell form (Q = C V):\n" + matrix_table(names, result.capacitance),
         "Mutual form (the capacitors of a SPICE netlist):\n"
-        + mutual_list(names, result.mutual, "ground" if result.reference == "ground plane" else "infinity"),
+        + mutual_list(names, result.mutual, "ground" if result.reference == "ground plane" else result.reference),
         "Checks:\n" + checks_text(result.checks),
         "Discretisation error is not estimated yet: refine the mesh and compare to judge it.",
     ])
