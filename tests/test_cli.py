@@ -217,3 +217,14 @@ def test_field_json_carries_samples_and_refinement(tmp_path):
     data = json.loads(out.read_text())
     assert [s["kind"] for s in data["samples"]].count("probe") == 1 and len(data["samples"]) == 1 + 25
     assert {r["part"] for r in data["peak_refinement"]} == {"hv", "ground"}
+
+
+def test_field_vtu_reads_back(tmp_path):
+    import meshio
+
+    out = tmp_path / "f.vtu"
+    assert main(["field", str(DATA_HV), "-q", "--vtu", str(out)]) == 0
+    mesh = meshio.read(out)
+    magnitude = mesh.cell_data["E_magnitude_V_per_m"][0]
+    assert len(magnitude) == 5400 and set(np.unique(mesh.cell_data["part"][0])) == {0, 1}
+    assert 5e6 < magnitude.max() < 2e7  # the rod tip at 50 kV, as the report says (9.2 kV/mm)

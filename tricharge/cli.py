@@ -183,14 +183,16 @@ def _pairs(values, parse, what: str) -> dict:
               help="Write the samples (probes, lines, section) as CSV.")
 @click.option("--vtk", "vtk_path", type=click.Path(dir_okay=False, path_type=Path),
               help="Write the section as a VTK image (.vti) for ParaView.")
+@click.option("--vtu", "vtu_path", type=click.Path(dir_okay=False, path_type=Path),
+              help="Write the panels with charge density and fields (.vtu) for ParaView.")
 @click.option("--refine-peaks", is_flag=True,
               help="Solve again with each part's peak region split finer and report how much the peak moved.")
 @_json_option
 @_method_option
 @_quiet_option
 def field(input_path: Path, unit: str | None, volts, withstand, top: int, probe, lines, section, grid: int,
-          samples_path: Path | None, vtk_path: Path | None, refine_peaks: bool, json_path: Path | None, method: str,
-          quiet: bool):
+          samples_path: Path | None, vtk_path: Path | None, vtu_path: Path | None, refine_peaks: bool,
+          json_path: Path | None, method: str, quiet: bool):
     """Surface fields and hot spots of INPUT with applied voltages (model file or --volts)."""
     from .errors import OptionError
     from .io.export import check_writable, write_atomic
@@ -199,7 +201,7 @@ def field(input_path: Path, unit: str | None, volts, withstand, top: int, probe,
     from .pipeline import solve_field
     from .units import parse_field_strength, parse_quantity
 
-    for path in (json_path, samples_path, vtk_path):
+    for path in (json_path, samples_path, vtk_path, vtu_path):
         if path is not None:
             check_writable(path)
     voltages = _pairs(volts, lambda v, what: parse_quantity(v, "V", what=what), "--volts")
@@ -225,6 +227,17 @@ def field(input_path: Path, unit: str | None, volts, withstand, top: int, probe,
         _echo("\n" + refinement_report(rechecked), quiet)
     if requests:
         sampled = _write_samples(result, model, requests, samples_path, vtk_path, quiet)
+    if vtu_path is not None:
+        from .io.export import write_vtu
+        from .pipeline import _part_groups
+
+        surface = result.surface
+        write_vtu(vtu_path, model.vertices, model.triangles, {
+            "part": _part_groups(model), "area_m2": result.problem.panels.areas,
+            "sigma_total_C_per_m2": result.sigma, "sigma_free_C_per_m2": surface.free_charge_density,
+            "E_normal_outside_V_per_m": surface.outside, "E_normal_inside_V_per_m": surface.inside,
+            "E_tangential_V_per_m": surface.tangential, "E_magnitude_V_per_m": surface.magnitude})
+        _echo(f"wrote {vtu_path} (part ids: {', '.join(f'{k} {p}' for k, p in enumerate(result.parts))})", quiet)
     if json_path is not None:
         import json
 
