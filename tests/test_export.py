@@ -169,3 +169,23 @@ def test_failed_run_leaves_existing_outputs_alone(tmp_path):
     assert main(["solve", str(tmp_path / "missing.stl"), "--csv", str(target)]) == 2
     assert target.read_text() == "previous result\n"
     assert sorted(p.name for p in tmp_path.iterdir()) == ["keep.csv"]
+
+
+def test_pyvista_reads_the_surface_and_section_files(solved, tmp_path):
+    """ParaView's reader library (through pyvista) gets the same numbers back."""
+    import pyvista
+
+    _, files, data = solved
+    surface = pyvista.read(files["vtu"])
+    reference = meshio.read(files["vtu"])
+    assert surface.n_cells == data["panels"]
+    for name in reference.cell_data:
+        np.testing.assert_array_equal(np.asarray(surface.cell_data[name]), reference.cell_data[name][0])
+    hv = os.path.join(os.path.dirname(__file__), "..", "meshes", "demo_hv.toml")
+    image, samples = tmp_path / "s.vti", tmp_path / "s.csv"
+    assert main(["field", hv, "-q", "--section", "x=0", "--grid", "9", "--vtk", str(image),
+                 "--samples", str(samples)]) == 0
+    grid = pyvista.read(image)
+    assert tuple(grid.dimensions) == (1, 9, 9)
+    table = np.genfromtxt(samples, delimiter=",", skip_header=1, usecols=(4,))
+    np.testing.assert_allclose(np.asarray(grid.point_data["potential_V"]), table, rtol=1e-8)
