@@ -16,7 +16,7 @@ import numpy as np
 
 from . import __version__
 from .errors import OptionError, TrichargeError
-from .units import LENGTH_UNITS
+from .units import LENGTH_UNITS, parse_quantity
 
 #: Built-in demos (our own invented scenarios), files in tricharge/data/ (links to meshes/).
 DEMOS = {"hv": "demo_hv.toml", "header": "demo_header.msh", "package": "demo_package.toml"}
@@ -100,6 +100,8 @@ _unit_option = click.option("--unit", "unit", type=click.Choice(list(LENGTH_UNIT
 _json_option = click.option("--json", "json_path", type=click.Path(dir_okay=False, path_type=Path),
                             help="Also write the result as JSON to this file.")
 _quiet_option = click.option("--quiet", "-q", is_flag=True, help="Print nothing but errors.")
+_volts_option = click.option("--volts", "volts", multiple=True, metavar="NAME=VALUE",
+                             help="Voltage of a conductor, e.g. hv=50kV (repeatable); overrides the model file.")
 _method_option = click.option("--method", type=click.Choice(["auto", "dense", "fast"]), default="auto",
                               show_default=True,
                               help="dense: stored matrix and LU (small models); fast: multipole and GMRES, memory "
@@ -167,8 +169,7 @@ def _pairs(values, parse, what: str) -> dict:
 @cli.command()
 @click.argument("input_path", metavar="INPUT", type=click.Path(path_type=Path))
 @_unit_option
-@click.option("--volts", "volts", multiple=True, metavar="NAME=VALUE",
-              help="Voltage of a conductor, e.g. hv=50kV (repeatable); overrides the model file.")
+@_volts_option
 @click.option("--withstand", multiple=True, metavar="MEDIUM=STRENGTH",
               help="Withstand field strength of a medium, e.g. air=3kV/mm, for margins (repeatable).")
 @click.option("--top", type=click.IntRange(1, 100), default=5, show_default=True,
@@ -176,6 +177,8 @@ def _pairs(values, parse, what: str) -> dict:
 @click.option("--probe", multiple=True, metavar="X,Y,Z", help="Sample the field at this point (repeatable).")
 @click.option("--line", "lines", multiple=True, metavar="X0,Y0,Z0:X1,Y1,Z1[:N]",
               help="Sample N points (default 101) along a line (repeatable).")
+@click.option("--line-png", "line_png", type=click.Path(dir_okay=False, path_type=Path),
+              help="Chart |E| along the first --line as a PNG.")
 @click.option("--section", metavar="AXIS=VALUE", help="Sample a plane section, e.g. z=40, across the model.")
 @click.option("--grid", type=click.IntRange(2, 1001), default=81, show_default=True,
               help="Points per side of the section.")
@@ -190,7 +193,7 @@ def _pairs(values, parse, what: str) -> dict:
 @_json_option
 @_method_option
 @_quiet_option
-def field(input_path: Path, unit: str | None, volts, withstand, top: int, probe, lines, section, grid: int,
+def field(input_path: Path, unit: str | None, volts, withstand, top: int, probe, lines, line_png, section, grid: int,
           samples_path: Path | None, vtk_path: Path | None, vtu_path: Path | None, refine_peaks: bool,
           json_path: Path | None, method: str, quiet: bool):
     """Surface fields and hot spots of INPUT with applied voltages (model file or --volts)."""
@@ -201,7 +204,9 @@ def field(input_path: Path, unit: str | None, volts, withstand, top: int, probe,
     from .pipeline import solve_field
     from .units import parse_field_strength, parse_quantity
 
-    for path in (json_path, samples_path, vtk_path, vtu_path):
+    if line_png is not None and not lines:
+        raise OptionError("--line-png charts a line: give --line too")
+    for path in (json_path, samples_path, vtk_path, vtu_path, line_png):
         if path is not None:
             check_writable(path)
     voltages = _pairs(volts, lambda v, what: parse_quantity(v, "V", what=what), "--volts")
@@ -210,7 +215,7 @@ def field(input_path: Path, unit: str | None, volts, withstand, top: int, probe,
         raise OptionError("--vtk writes the plane section: give --section too, e.g. --section z=0")
     model = load(input_path, unit=unit)
     requests = _sample_requests(model, probe, lines, section, grid)
-    if requests and samples_path is None and vtk_path is None:
+    if requests and samples_path is None and vtk_path is None and line_png is None:
         raise OptionError("samples asked for but no output: add --samples FILE.csv (or --vtk for a section)")
     progress = _Progress(quiet)
     try:
@@ -227,6 +232,17 @@ def field(input_path: Path, unit: str | None, volts, withstand, top: int, probe,
         _echo("\n" + refinement_report(rechecked), quiet)
     if requests:
         sampled = _write_samples(result, model, requests, samples_path, vtk_path, quiet)
+    if line_png is not None:
+        from .io.export import write_bytes_atomic
+        from .units import metres_per
+        from .viz.plots import line_profile
+
+        points = next(pts for kind, pts, _ in requests if kind == "line")
+        _, e = result.sample(points)
+        distance = np.linalg.norm(points - points[0], axis=1) / metres_per(model.unit)
+        write_bytes_atomic(line_png, line_profile(distance, np.linalg.norm(e, axis=1), unit=model.unit,
+                                                  title=f"{input_path.name}: field along {lines[0]}"))
+        _echo(f"wrote {line_png}", quiet)
     if vtu_path is not None:
         from .io.export import write_vtu
         from .pipeline import _part_groups
@@ -375,6 +391,123 @@ def _write_samples(result, model, requests, samples_path, vtk_path, quiet) -> li
         _echo(f"wrote {samples_path}", quiet)
     return [{"kind": k, "point_m": p.tolist(), "potential_V": float(v), "field_V_per_m": e.tolist()}
             for k, p, v, e in zip(kinds, points, potentials, fields)]
+
+
+@cli.command()
+@click.argument("input_path", metavar="INPUT", type=click.Path(path_type=Path))
+@_unit_option
+@_volts_option
+@click.option("--png", "png_path", type=click.Path(dir_okay=False, path_type=Path), help="Write the picture here.")
+@click.option("--quantity", type=click.Choice(["field", "charge"]), default="field", show_default=True,
+              help="Colour by |E| or by free surface charge density.")
+@click.option("--log", "log_scale", is_flag=True, help="Logarithmic colour scale.")
+@click.option("--view", "view_name", type=click.Choice(["iso", "top", "front", "side"]), default="iso",
+              show_default=True)
+@click.option("--interactive", is_flag=True, help="Open a window (needs a display) instead of a file.")
+@_method_option
+def view(input_path: Path, unit, volts, png_path, quantity, log_scale, view_name, interactive, method):
+    """Picture of INPUT's surface field: a mesh or model file (solved with its voltages or
+    --volts), or a .vtu written by 'field --vtu' (shown without solving again)."""
+    from .io.export import check_writable
+    from .viz.render import Picture, render_png, show
+
+    if not interactive and png_path is None:
+        raise OptionError("say where the picture goes: --png FILE (or --interactive with a display)")
+    if png_path is not None:
+        check_writable(png_path)
+    if input_path.suffix.lower() == ".vtu" and _is_saved_field(input_path):
+        picture = _saved_picture(input_path, quantity, log_scale)
+    else:
+        from .io.modelfile import load
+        from .pipeline import solve_field
+        from .viz import field_picture
+
+        model = load(input_path, unit=unit)
+        voltages = _pairs(volts, lambda v, what: parse_quantity(v, "V", what=what), "--volts")
+        picture, _ = field_picture(model, solve_field(model, voltages, method=method), quantity=quantity,
+                                   log=log_scale)
+    if interactive and os.environ.get("DISPLAY"):
+        show(picture, view=view_name)
+    else:
+        if interactive:
+            click.echo("no display: writing the picture off-screen instead", err=True)
+        if png_path is None:
+            raise OptionError("no display for --interactive: give --png FILE")
+        render_png(picture, png_path, view=view_name)
+        click.echo(f"wrote {png_path}")
+
+
+def _is_saved_field(path: Path) -> bool:
+    import meshio
+
+    try:
+        return "E_magnitude_V_per_m" in meshio.read(path).cell_data
+    except Exception:
+        return False
+
+
+def _saved_picture(path: Path, quantity: str, log_scale: bool):
+    import meshio
+
+    from .viz.render import Picture
+
+    mesh = meshio.read(path)
+    data = {k: v[0] for k, v in mesh.cell_data.items()}
+    if quantity == "field":
+        values, label = data["E_magnitude_V_per_m"] / 1e6, "E (kV/mm)"
+    else:
+        values, label = data["sigma_free_C_per_m2"] * 1e6, "charge (uC/m2)"
+    return Picture(mesh.points * 1e3, mesh.cells_dict["triangle"], values, f"{path.name} (mm): {label}", label,
+                   log_scale)
+
+
+@cli.command()
+@click.argument("input_path", metavar="INPUT", type=click.Path(path_type=Path))
+@click.option("--html", "html_path", type=click.Path(dir_okay=False, path_type=Path), required=True,
+              help="Write the report here (one self-contained file).")
+@_unit_option
+@_volts_option
+@_method_option
+@_quiet_option
+def report(input_path: Path, html_path: Path, unit, volts, method, quiet):
+    """A report of INPUT a designer can hand on: model, capacitance matrix in both forms,
+    checks, and, when every conductor has a voltage, hot spots with cautions and pictures."""
+    from .io.export import check_writable, write_atomic
+    from .io.modelfile import load
+    from .io.text import CAUTIONS
+    from .pipeline import solve, solve_field
+    from .viz import field_picture
+    from .viz.plots import matrix_heatmap
+    from .viz.render import render_png
+    from .viz.report import report_html
+
+    check_writable(html_path)
+    model = load(input_path, unit=unit)
+    voltages = _pairs(volts, lambda v, what: parse_quantity(v, "V", what=what), "--volts")
+    result = solve(model, method=method)
+    field_result = None
+    if all(c.floating or c.voltage is not None or c.name in voltages for c in model.conductors):
+        field_result = solve_field(model, voltages, method=method)
+    images = [("Mutual capacitances", matrix_heatmap(result.conductors, result.mutual, reference=result.reference))]
+    if field_result is not None:
+        import tempfile
+
+        picture, _ = field_picture(model, field_result)
+        with tempfile.TemporaryDirectory() as folder:
+            png = Path(folder) / "field.png"
+            render_png(picture, png)
+            images.append(("Surface field with the applied voltages; numbered markers are the hot spots",
+                           png.read_bytes()))
+    survey = model.survey
+    rows = [[p.name, p.kind, p.panels, f"{p.area:.4g} m2", p.detail] for p in survey.parts]
+    summary = [f"{len(model.conductors)} conductors, {len(model.interfaces)} interfaces, {model.n_panels} panels, "
+               f"unit {model.unit}", f"solved by the {result.method} method in {result.solve_time:.1f} s",
+               f"reference of the mutual form: {result.reference}"]
+    page = report_html(title=f"tricharge report: {input_path.name}", summary=summary, model_rows=rows, result=result,
+                       field=field_result, images=images, cautions=CAUTIONS,
+                       provenance=_provenance(input_path, model.unit, result))
+    write_atomic(html_path, page)
+    _echo(f"wrote {html_path}", quiet)
 
 
 @cli.command()

@@ -42,6 +42,19 @@ def write_atomic(path, text: str) -> None:
         raise
 
 
+def write_bytes_atomic(path, data: bytes) -> None:
+    """Binary twin of :func:`write_atomic`."""
+    path = check_writable(path)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    try:
+        with os.fdopen(fd, "wb") as handle:
+            handle.write(data)
+        os.replace(tmp, path)
+    except BaseException:
+        Path(tmp).unlink(missing_ok=True)
+        raise
+
+
 def result_json(result, **provenance) -> str:
     """JSON text of a result: the stable keys of DESIGN.md plus provenance."""
     data = result.to_dict()

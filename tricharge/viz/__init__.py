@@ -1,4 +1,37 @@
 """Pictures and reports of computed results (pyvista, matplotlib; imported lazily).
 
-Nothing here yet: pictures arrive with the visualisation issue.
+``render`` draws 3D surfaces off-screen, ``plots`` makes charts, ``report`` writes the
+self-contained HTML report.
 """
+
+def field_picture(model, field, *, quantity: str = "field", log: bool = False, top: int = 3):
+    """A :class:`~tricharge.viz.render.Picture` of a field solution on a model: conductors
+    coloured by |E| (kV/mm) or free charge density (uC/m^2), interfaces translucent,
+    conductor names on the parts, the ``top`` hot spots of each part numbered as in the
+    hot-spot list."""
+    import numpy as np
+
+    from ..units import metres_per
+    from .render import Picture
+
+    scale = metres_per(model.unit)
+    on = model.conductor_labels >= 0
+    triangles = model.triangles[on]
+    if quantity == "field":
+        values, label = field.surface.magnitude[on] / 1e6, "E (kV/mm)"
+    else:
+        values, label = field.surface.free_charge_density[on] * 1e6, "charge (uC/m2)"
+    vertices = model.vertices / scale
+    centroids = vertices[model.triangles].mean(axis=1)
+    labels = []
+    for k, name in enumerate(model.conductor_names):
+        mine = centroids[model.conductor_labels == k]
+        top_point = mine[np.argmax(mine[:, 2])]
+        labels.append((name, top_point))
+    spots = [s for s in field.spots if s.rank <= top and s.group < len(model.conductors)]
+    markers = [(n + 1, np.array(s.location) / scale) for n, s in enumerate(spots)]
+    ghosts = [(vertices, model.triangles[~on])] if (~on).any() else []
+    from pathlib import Path
+
+    title = f"{Path(model.source).name}: {'surface field' if quantity == 'field' else 'free surface charge'}"
+    return Picture(vertices, triangles, values, title, label, log, labels, markers, ghosts), spots

@@ -1,0 +1,62 @@
+"""Charts with matplotlib (imported inside the functions; Agg backend, no display)."""
+
+from __future__ import annotations
+
+import io
+
+import numpy as np
+
+from ..errors import TrichargeError
+from ..units import prefix_for
+
+
+def _pyplot():
+    try:
+        import matplotlib
+    except ImportError:
+        raise TrichargeError('charts need matplotlib: pip install "tricharge[viz]"') from None
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    return plt
+
+
+def _png(figure) -> bytes:
+    buffer = io.BytesIO()
+    figure.savefig(buffer, format="png", dpi=110, bbox_inches="tight")
+    return buffer.getvalue()
+
+
+def matrix_heatmap(names, mutual, *, reference: str = "infinity") -> bytes:
+    """PNG bytes: the mutual-form matrix as an annotated heat map, one engineering prefix
+    for all cells; the diagonal is each conductor's capacitance to the reference."""
+    plt = _pyplot()
+    m = np.asarray(mutual, dtype=float)
+    scale, symbol = prefix_for(np.abs(m).max() if m.size else 0.0)
+    size = 1.2 + 0.7 * len(names)
+    figure, axes = plt.subplots(figsize=(size + 1.5, size))
+    image = axes.imshow(m / scale, cmap="viridis")
+    axes.set_xticks(range(len(names)), labels=names, rotation=45, ha="right")
+    axes.set_yticks(range(len(names)), labels=names)
+    for (a, b), value in np.ndenumerate(m / scale):
+        colour = "white" if value < 0.6 * (m / scale).max() else "black"
+        axes.text(b, a, f"{value:.4g}", ha="center", va="center", color=colour, fontsize=9)
+    figure.colorbar(image, ax=axes, label=f"capacitance ({symbol}F)")
+    axes.set_title(f"Mutual capacitances; diagonal: to {reference}")
+    data = _png(figure)
+    plt.close(figure)
+    return data
+
+
+def line_profile(distance, magnitude, *, unit: str, title: str) -> bytes:
+    """PNG bytes: |E| (kV/mm) against distance along a line (in ``unit``)."""
+    plt = _pyplot()
+    figure, axes = plt.subplots(figsize=(6, 3.5))
+    axes.plot(np.asarray(distance), np.asarray(magnitude) / 1e6)
+    axes.set_xlabel(f"distance along the line ({unit})")
+    axes.set_ylabel("field magnitude (kV/mm)")
+    axes.set_title(title)
+    axes.grid(True, alpha=0.3)
+    data = _png(figure)
+    plt.close(figure)
+    return data

@@ -1,0 +1,72 @@
+"""A self-contained HTML report: one file, images embedded, no network requests.
+
+Every name that came from a user's file is escaped, so a conductor called ``<script>``
+shows as text.
+"""
+
+from __future__ import annotations
+
+import base64
+import html
+
+import numpy as np
+
+from ..units import format_eng
+
+
+def _image(png: bytes, alt: str) -> str:
+    return f'<img alt="{html.escape(alt)}" src="data:image/png;base64,{base64.b64encode(png).decode()}">'
+
+
+def _matrix_table(names, matrix, caption: str) -> str:
+    head = "".join(f"<th>{html.escape(n)}</th>" for n in names)
+    rows = "".join(
+        f"<tr><th>{html.escape(n)}</th>" + "".join(f"<td>{html.escape(format_eng(x, 'F'))}</td>" for x in row) + "</tr>"
+        for n, row in zip(names, np.asarray(matrix)))
+    return f'<table class="matrix"><caption>{html.escape(caption)}</caption><tr><th></th>{head}</tr>{rows}</table>'
+
+
+def _rows(header, rows) -> str:
+    head = "".join(f"<th>{html.escape(h)}</th>" for h in header)
+    body = "".join("<tr>" + "".join(f"<td>{html.escape(str(c))}</td>" for c in row) + "</tr>" for row in rows)
+    return f"<table><tr>{head}</tr>{body}</table>"
+
+
+def report_html(*, title: str, summary: list[str], model_rows: list, result, field=None, images=(),
+                cautions: str = "", provenance: dict | None = None) -> str:
+    """The report page.
+
+    summary : lines of plain text; model_rows : rows (name, kind, panels, area, condition)
+    result : capacitance Result; field : FieldResult or None (hot spots)
+    images : [(caption, png bytes)]; cautions : text; provenance : key -> value
+    """
+    parts = [f"<h1>{html.escape(title)}</h1>", "<ul>" + "".join(f"<li>{html.escape(s)}</li>" for s in summary) + "</ul>",
+             "<h2>Model</h2>", _rows(["part", "kind", "panels", "area", "condition"], model_rows),
+             "<h2>Capacitance</h2>",
+             _matrix_table(result.conductors, result.capacitance, "Maxwell form (Q = C V)"),
+             _matrix_table(result.conductors, result.mutual,
+                           f"Mutual form: couplings; diagonal to {result.reference}"),
+             "<h2>Checks</h2>",
+             _rows(["check", "value"], [["asymmetry", f"{result.checks.asymmetry:.1e}"],
+                                        ["self capacitances positive", result.checks.positive_diagonal],
+                                        ["couplings non-positive", result.checks.nonpositive_offdiagonal],
+                                        ["row sums non-negative", result.checks.diagonally_dominant]]
+                   + [["problem", p] for p in result.checks.problems])]
+    if field is not None:
+        rows = [[field.parts[s.group], s.rank, f"{s.field / 1e6:.4g} kV/mm",
+                 ", ".join(f"{x:.4g}" for x in s.location), f"sharp ({s.sharp_angle:.0f} deg)" if s.sharp else ""]
+                for s in field.spots]
+        parts += ["<h2>Hot spots</h2>", _rows(["part", "#", "|E|", "where (m)", "feature"], rows)]
+        if cautions:
+            parts.append(f'<pre class="cautions">{html.escape(cautions)}</pre>')
+    for caption, png in images:
+        parts.append(f"<figure>{_image(png, caption)}<figcaption>{html.escape(caption)}</figcaption></figure>")
+    if provenance:
+        parts += ["<h2>Provenance</h2>", _rows(["item", "value"], [[k, v] for k, v in provenance.items()])]
+    style = ("body{font-family:sans-serif;max-width:1100px;margin:2em auto;color:#222}"
+             "table{border-collapse:collapse;margin:1em 0}td,th{border:1px solid #ccc;padding:3px 8px;"
+             "text-align:right}caption{font-weight:bold;text-align:left}img{max-width:100%}"
+             ".cautions{background:#fff6e0;padding:1em;white-space:pre-wrap}")
+    return ("<!DOCTYPE html><html><head><meta charset=\"utf-8\">"
+            f"<title>{html.escape(title)}</title><style>{style}</style></head><body>"
+            + "\n".join(parts) + "</body></html>\n")
