@@ -4,11 +4,11 @@
 self-contained HTML report.
 """
 
-def field_picture(model, field, *, quantity: str = "field", log: bool = False, top: int = 3):
+def field_picture(model, field, *, quantity: str = "field", log: bool = False, top: int = 1):
     """A :class:`~tricharge.viz.render.Picture` of a field solution on a model: conductors
     coloured by |E| (kV/mm) or free charge density (uC/m^2), interfaces translucent,
-    conductor names on the parts, the ``top`` hot spots of each part numbered as in the
-    hot-spot list."""
+    conductor names on the parts, the ``top`` hot spots of each conductor marked
+    "name #rank" as in the hot-spot tables."""
     import numpy as np
 
     from ..units import metres_per
@@ -29,7 +29,7 @@ def field_picture(model, field, *, quantity: str = "field", log: bool = False, t
         top_point = mine[np.argmax(mine[:, 2])]
         labels.append((name, top_point))
     spots = [s for s in field.spots if s.rank <= top and s.group < len(model.conductors)]
-    markers = [(n + 1, np.array(s.location) / scale) for n, s in enumerate(spots)]
+    markers = [(f"{field.parts[s.group]} #{s.rank}", np.array(s.location) / scale) for s in spots]
     ghosts = [(vertices, model.triangles[~on])] if (~on).any() else []
     from pathlib import Path
 

@@ -35,7 +35,7 @@ class Picture:
 
     vertices (n, 3), triangles (m, 3), values (m,) per panel; title and the colour bar's
     label (with units); log: logarithmic colour scale; labels: [(text, point)] placed on
-    the parts; markers: [(number, point)] numbered hot spots; ghosts: [(vertices,
+    the parts; markers: [(label, point)] hot spots; ghosts: [(vertices,
     triangles)] drawn translucent (dielectric bodies)
     """
 
