@@ -409,7 +409,7 @@ def view(input_path: Path, unit, volts, png_path, quantity, log_scale, view_name
     """Picture of INPUT's surface field: a mesh or model file (solved with its voltages or
     --volts), or a .vtu written by 'field --vtu' (shown without solving again)."""
     from .io.export import check_writable
-    from .viz.render import Picture, render_png, show
+    from .viz.render import render_png, show
 
     if not interactive and png_path is None:
         raise OptionError("say where the picture goes: --png FILE (or --interactive with a display)")
