@@ -6,7 +6,6 @@ Exit status: 0 success, 2 bad input (one line on stderr), 1 internal error.
 from __future__ import annotations
 
 import os
-import re
 import sys
 from importlib import resources
 from pathlib import Path
@@ -57,6 +56,7 @@ class _Progress:
 def _solve_and_report(path: Path, unit: str | None, json_path: Path | None, quiet: bool, method: str = "auto",
                       tol: float = 1e-6, reductions: dict | None = None, outputs: dict | None = None,
                       form: str = "maxwell", drop_below: float = 0.0) -> None:
+    from .io import outputs as outputs_module
     from .io.export import check_writable, write_json
     from .io.modelfile import load
     from .io.text import plural, result_report
@@ -82,11 +82,12 @@ def _solve_and_report(path: Path, unit: str | None, json_path: Path | None, quie
         except ValueError as exc:
             raise OptionError(f"{path}: {exc}") from None
     _echo(result_report(result, source=path.name, unit=unit, version=__version__), quiet)
-    provenance = _provenance(path, unit, result)
+    provenance = outputs_module.provenance(path, unit, result)
     if json_path is not None:
         write_json(json_path, result, **provenance)
         _echo(f"\nwrote {json_path}", quiet)
-    _write_matrix_outputs(result, full, model, outputs, form, drop_below, provenance, quiet)
+    outputs_module.write_matrix_outputs(result, full, model, outputs, form, drop_below, provenance,
+                                        lambda text: _echo(text, quiet))
 
 
 @click.group(context_settings={"help_option_names": ["-h", "--help"]})
@@ -231,7 +232,9 @@ def field(input_path: Path, unit: str | None, volts, withstand, top: int, probe,
         rechecked = recheck(result, model, method=method)
         _echo("\n" + refinement_report(rechecked), quiet)
     if requests:
-        sampled = _write_samples(result, model, requests, samples_path, vtk_path, quiet)
+        from .io.outputs import write_samples
+
+        sampled = write_samples(result, model, requests, samples_path, vtk_path, lambda text: _echo(text, quiet))
     if line_png is not None:
         from .io.export import write_bytes_atomic
         from .units import metres_per
@@ -283,58 +286,6 @@ def _numbers(text: str, count: int, what: str) -> list[float]:
     return values
 
 
-def _provenance(path: Path, unit: str, result) -> dict:
-    """Where a result came from: tool version, input file and its SHA-256, unit, date."""
-    import datetime
-    import hashlib
-
-    digest = hashlib.sha256(path.read_bytes()).hexdigest() if path.is_file() else None
-    return {"tricharge_version": __version__, "input_file": str(path), "input_sha256": digest, "unit": unit,
-            "created": datetime.datetime.now(datetime.timezone.utc).isoformat(timespec="seconds")}
-
-
-def _write_matrix_outputs(result, full, model, outputs: dict, form: str, drop_below: float, provenance: dict,
-                          quiet: bool) -> None:
-    """SPICE, CSV, NPZ and VTU files of a solve; each written atomically."""
-    from .io.export import matrix_csv, write_atomic, write_npz, write_vtu
-
-    if "spice" in outputs:
-        from .io.spice import subcircuit
-
-        path = outputs["spice"]
-        header = (f"tricharge {provenance['tricharge_version']}: capacitance subcircuit",
-                  f"input {provenance['input_file']} sha256 {provenance['input_sha256']}",
-                  f"unit {provenance['unit']}, method {result.method}, {result.n_panels} panels, "
-                  f"created {provenance['created']}")
-        name = re.sub(r"[^A-Za-z0-9_]", "_", Path(provenance["input_file"]).stem) or "tricharge"
-        circuit = subcircuit(result.mutual, result.conductors, name=name, reference=result.reference,
-                             drop_below=drop_below, header=header)
-        write_atomic(path, circuit.text)
-        _echo(f"wrote {path} (.subckt {name})", quiet)
-        for note in circuit.renamed:
-            _echo(f"  renamed for SPICE: {note}", quiet)
-        if circuit.dropped:
-            _echo(f"  left out {circuit.dropped} couplings below {drop_below:g} of their row total, "
-                  f"{circuit.dropped_total:.4g} F in all", quiet)
-    if "csv" in outputs:
-        matrix = result.capacitance if form == "maxwell" else result.mutual
-        write_atomic(outputs["csv"], matrix_csv(result.conductors, matrix, form=form))
-        _echo(f"wrote {outputs['csv']} ({form} form, farads)", quiet)
-    if "npz" in outputs:
-        write_npz(outputs["npz"], conductors=np.array(result.conductors), maxwell=result.capacitance,
-                  mutual=result.mutual, reference=np.array(result.reference))
-        _echo(f"wrote {outputs['npz']}", quiet)
-    if "vtu" in outputs:
-        from .bem.capacitance import EPS0
-
-        data = {"conductor": full.labels, "area_m2": full.panel_areas}
-        for k, name in enumerate(full.conductors):
-            data[f"sigma_C_per_m2_{name}_at_1V"] = full.sigma[:, k]
-            data[f"E_normal_V_per_m_{name}_at_1V"] = np.where(full.labels >= 0, full.sigma[:, k] / EPS0, np.nan)
-        write_vtu(outputs["vtu"], model.vertices, model.triangles, data)
-        _echo(f"wrote {outputs['vtu']}", quiet)
-
-
 def _sample_requests(model, probes, lines, section, grid) -> list:
     """[(kind, points (M, 3) metres, image geometry or None)] from the sampling options."""
     from .errors import OptionError
@@ -362,35 +313,6 @@ def _sample_requests(model, probes, lines, section, grid) -> list:
                                                      grid)
         requests.append(("section", points, (origin, spacing, dims)))
     return requests
-
-
-def _write_samples(result, model, requests, samples_path, vtk_path, quiet) -> list[dict]:
-    """Evaluate the requested samples, write the CSV and VTK files asked for, and return
-    the samples as records for the JSON output (coordinates in metres)."""
-    from .io.export import image_vti, samples_csv, write_atomic
-    from .units import metres_per
-
-    scale = metres_per(model.unit)
-    kinds, points, potentials, fields = [], [], [], []
-    for kind, pts, image in requests:
-        phi, e = result.sample(pts)
-        kinds += [kind] * len(pts)
-        points.append(pts)
-        potentials.append(phi)
-        fields.append(e)
-        if image is not None and vtk_path is not None:
-            origin, spacing, dims = image
-            spacing = np.where(dims > 1, spacing / scale, 1.0)
-            write_atomic(vtk_path, image_vti(origin / scale, spacing, dims,
-                                             {"potential_V": phi, "E_V_per_m": e,
-                                              "E_magnitude_V_per_m": np.linalg.norm(e, axis=1)}))
-            _echo(f"wrote {vtk_path}", quiet)
-    points, potentials, fields = np.vstack(points), np.concatenate(potentials), np.vstack(fields)
-    if samples_path is not None:
-        write_atomic(samples_path, samples_csv(kinds, points, potentials, fields, model.unit, scale))
-        _echo(f"wrote {samples_path}", quiet)
-    return [{"kind": k, "point_m": p.tolist(), "potential_V": float(v), "field_V_per_m": e.tolist()}
-            for k, p, v, e in zip(kinds, points, potentials, fields)]
 
 
 @cli.command()
@@ -474,6 +396,7 @@ def report(input_path: Path, html_path: Path, unit, volts, method, quiet):
     checks, and, when every conductor has a voltage, hot spots with cautions and pictures."""
     from .io.export import check_writable, write_atomic
     from .io.modelfile import load
+    from .io.outputs import provenance
     from .io.text import CAUTIONS
     from .pipeline import solve, solve_field
     from .viz import field_picture
@@ -505,7 +428,7 @@ def report(input_path: Path, html_path: Path, unit, volts, method, quiet):
                f"reference of the mutual form: {result.reference}"]
     page = report_html(title=f"tricharge report: {input_path.name}", summary=summary, model_rows=rows, result=result,
                        field=field_result, images=images, cautions=CAUTIONS,
-                       provenance=_provenance(input_path, model.unit, result))
+                       provenance=provenance(input_path, model.unit, result))
     write_atomic(html_path, page)
     _echo(f"wrote {html_path}", quiet)
 
