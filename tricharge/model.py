@@ -206,11 +206,6 @@ class Model:
         """The medium a conductor surface touches."""
         return self.conductor_media.get(surface, self.background)
 
-    @property
-    def is_homogeneous(self) -> bool:
-        """True when there are no interfaces and every conductor surface touches the background."""
-        return not self.interfaces and all(m == self.background for m in self.conductor_media.values())
-
     def __repr__(self) -> str:
         extra = f", {len(self.interfaces)} interfaces" if self.interfaces else ""
         ground = f", ground plane at z = {self.ground_z:g} m" if self.ground_z is not None else ""

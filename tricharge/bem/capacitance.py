@@ -105,7 +105,7 @@ def maxwell_from_charges(sigma: np.ndarray, areas: np.ndarray, labels: np.ndarra
 
 @dataclass(frozen=True, repr=False)
 class Result:
-    """Capacitance of a set of conductors in a homogeneous medium.
+    """Capacitance matrix of a set of conductors (any media, ground plane, floating parts).
 
     conductors : names, in matrix order
     capacitance : (K, K) farads, Maxwell form, symmetric part of the raw matrix

@@ -1,8 +1,10 @@
-"""Potential and electric field of the solved surface charge, and Gauss's-law checks.
+"""Potential and electric field of the solved surface charge, surface fields, hot spots
+and Gauss's-law checks.
 
-The charge layer is piecewise constant: ``sigma`` (N,) C/m^2 on N flat panels in a
-homogeneous medium of relative permittivity ``eps_r``. ``sigma`` here is the *total*
-(free plus bound) density, so the medium only enters through the free charge.
+The charge layer is piecewise constant: ``sigma`` (N,) C/m^2 on N flat panels, the
+*total* (free plus bound) density on conductors and dielectric interfaces alike, so the
+vacuum kernel gives the potential and field everywhere; a ground plane enters through
+its image panels. Media matter only for the free charge on conductors.
 """
 
 from __future__ import annotations
@@ -15,7 +17,7 @@ from .capacitance import EPS0, FOUR_PI_EPS0
 from .fmm import potentials
 from .operators import NearFieldPolicy, far_rule_pairs, near_pairs, pair_integrals
 from .panels import Panels
-from .system import GENERAL_FAST_POLICY, _near_rows, gauss_self_terms
+from .system import GENERAL_FAST_POLICY, near_rows, gauss_self_terms
 
 #: Multipole precision for field evaluation (well below the 1 % checks made on fields).
 FIELD_FMM_EPS = 1e-7
@@ -113,7 +115,7 @@ def surface_field(problem, sigma, *, policy: NearFieldPolicy | None = None) -> S
         normals = panels.normals[rows]
         normal = np.einsum("md,md->m", e, normals)
         # the curvature a flat panel misses: the same Gauss self term the solve used
-        near = _near_rows(panels.centroids[rows], panels, GENERAL_FAST_POLICY, "field", normals)
+        near = near_rows(panels.centroids[rows], panels, GENERAL_FAST_POLICY, "field", normals)
         members, self_terms = gauss_self_terms(panels, rows, near, FIELD_FMM_EPS)
         normal[members] += self_terms * sigma[rows[members]] / FOUR_PI_EPS0
         outside[rows] = normal + sigma[rows] / (2.0 * EPS0)

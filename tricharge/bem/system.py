@@ -169,7 +169,7 @@ def problem_from_arrays(vertices, triangles, conductor, permittivity=None, contr
                    ground_z, tuple(names) or tuple(f"c{i + 1}" for i in range(k)))
 
 
-def _near_rows(targets, panels: Panels, policy: NearFieldPolicy, kind: str, normals=None):
+def near_rows(targets, panels: Panels, policy: NearFieldPolicy, kind: str, normals=None):
     """Sparse (M, N) near corrections of the far rule for the given targets: exact minus
     one-point values for pairs within ``policy.corrected_within`` panel sizes; for
     ``kind="field"`` the normal component ``n_i . F``."""
@@ -190,7 +190,7 @@ def gauss_self_terms(panels: Panels, rows: np.ndarray, near, eps: float = 1e-6):
     ----------
     panels : all panels; ``rows`` (R,) the interface panels
     near : sparse (R, N) near corrections of the normal field for those rows
-        (:func:`_near_rows`, without images)
+        (:func:`near_rows`, without images)
     eps : multipole precision
 
     Returns
@@ -267,13 +267,13 @@ class FastSystem:
         self.rows_i = np.flatnonzero(~problem.is_conductor_panel)
         c = panels.centroids
         normals = panels.normals[self.rows_i]
-        self.near_c = _near_rows(c[self.rows_c], panels, self.policy, "potential")
-        self.near_i = _near_rows(c[self.rows_i], panels, self.policy, "field", normals).tolil()
+        self.near_c = near_rows(c[self.rows_c], panels, self.policy, "potential")
+        self.near_i = near_rows(c[self.rows_i], panels, self.policy, "field", normals).tolil()
         self._add_gauss_diagonal()
         self.near_i = self.near_i.tocsr()
         if problem.images is not None:
-            self.near_c = self.near_c - _near_rows(c[self.rows_c], problem.images, self.policy, "potential")
-            self.near_i = self.near_i - _near_rows(c[self.rows_i], problem.images, self.policy, "field", normals)
+            self.near_c = self.near_c - near_rows(c[self.rows_c], problem.images, self.policy, "potential")
+            self.near_i = self.near_i - near_rows(c[self.rows_i], problem.images, self.policy, "field", normals)
         self.n, self.floating = n, problem.floating_index
         size = n + len(self.floating)
         self.shape = (size, size)
