@@ -67,6 +67,12 @@ def test_demo_matrix_is_physical_and_mirror_symmetric(tmp_path, capsys):
     ("degenerate.stl", ["solve", "{tmp}/degenerate.stl"], "1 degenerate (zero-area) triangles"),
     ("ball", ["solve", "{tmp}/ball.stl", "--unit", "furlong"], "Invalid value for '--unit'"),
     ("ball", ["solve", "{tmp}/ball.stl", "--json", "{tmp}/no/such/dir/out.json"], "does not exist"),
+    ("ball", ["solve", "{tmp}/ball.stl", "--accuracy", "5", "--json", "{tmp}/o.json"], "write a percentage like 0.5%"),
+    ("ball", ["solve", "{tmp}/ball.stl", "--accuracy", "1%", "--levels", "3", "--json", "{tmp}/o.json"],
+     "--levels and --accuracy are two ways"),
+    ("ball", ["solve", "{tmp}/ball.stl", "--accuracy", "1%", "--max-panels", "300", "--json", "{tmp}/o.json"],
+     "panel budget 300 is not above the model's 320 panels"),
+    ("ball", ["solve", "{tmp}/ball.stl", "--levels", "5"], "Invalid value for '--levels'"),
 ])
 def test_bad_input_gives_one_line_and_exit_2(tmp_path, capsys, setup, args, message):
     contents = {
@@ -228,3 +234,46 @@ def test_field_vtu_reads_back(tmp_path):
     magnitude = mesh.cell_data["E_magnitude_V_per_m"][0]
     assert len(magnitude) == 5400 and set(np.unique(mesh.cell_data["part"][0])) == {0, 1}
     assert 5e6 < magnitude.max() < 2e7  # the rod tip at 50 kV, as the report says (9.2 kV/mm)
+
+
+def test_levels_give_value_plus_minus_estimate_in_table_and_json(tmp_path, capsys):
+    """Two spheres of 10 mm, three levels: every cell reads value ± estimate, the JSON has
+    an error_estimate of the matrix's shape, and the coarse level's error is inside it
+    (4 pi eps0 R bounds: series of Smythe 1968 section 5.08, see reference tests)."""
+    path = tmp_path / "pair.stl"
+    v, t, _ = shapes.combine(shapes.sphere(10.0, 2), shapes.sphere(10.0, 2, center=(25.0, 0, 0)))
+    trimesh.Trimesh(v, t, process=False).export(path)
+    out = tmp_path / "pair.json"
+    assert main(["solve", str(path), "--unit", "mm", "--levels", "3", "--json", str(out)]) == 0
+    text = capsys.readouterr().out
+    assert "extrapolated ± estimated error" in text and text.count(" ± ") >= 4 + 3
+    assert "Refinement study (uniform): panels 160 -> 640 -> 2,560" in text
+    data = json.loads(out.read_text())
+    c, e = np.array(data["capacitance_matrix"]), np.array(data["error_estimate"])
+    assert e.shape == c.shape == (2, 2) and np.all(e > 0) and np.all(e < 0.02 * np.abs(c))
+    assert data["refinement_study"]["panels_per_level"] == [160, 640, 2560]
+    assert "Richardson" in data["error_estimate_method"]
+    np.testing.assert_allclose(np.array(data["mutual_error_estimate"]).diagonal(), e.sum(axis=1))
+    # the matrix is the extrapolation, not any one level
+    assert not np.any(np.isclose(c, np.array(data["refinement_study"]["matrices_per_level"]), rtol=1e-9,
+                                  atol=0))
+
+
+def test_single_solve_says_error_not_estimated(tmp_path, capsys):
+    out = tmp_path / "ball.json"
+    assert main(["solve", str(_sphere_stl(tmp_path)), "--json", str(out)]) == 0
+    assert "add --levels 3 or --accuracy 0.5%" in capsys.readouterr().out
+    data = json.loads(out.read_text())
+    assert data["error_estimate"] is None and data["error_estimate_method"].startswith("none")
+
+
+def test_accuracy_option_refines_adaptively(tmp_path, capsys):
+    out = tmp_path / "cube.json"
+    path = tmp_path / "cube.stl"
+    trimesh.Trimesh(*shapes.cube(10.0, 3), process=False).export(path)
+    assert main(["solve", str(path), "--unit", "mm", "--accuracy", "2%", "--json", str(out)]) == 0
+    text = capsys.readouterr().out
+    assert "Refinement study (adaptive)" in text and "accuracy reached" in text
+    data = json.loads(out.read_text())
+    assert data["refinement_study"]["stop"] == "accuracy reached"
+    assert data["error_estimate"][0][0] <= 0.02 * data["capacitance_matrix"][0][0]

@@ -30,7 +30,8 @@ def problem_of(model: Model) -> Problem:
     return Problem(panels, conductor, permittivity, contrast, floating, model.ground_z, model.conductor_names)
 
 
-def solve(model: Model, *, method: str = "auto", tol: float = 1e-6, progress=None) -> Result:
+def solve(model: Model, *, method: str = "auto", tol: float = 1e-6, progress=None, levels: int = 1,
+          accuracy: float | None = None, max_panels: int = 200_000, project=None) -> Result:
     """Capacitance matrix of the model's conductors (Maxwell form, farads).
 
     ``method`` is "auto" (dense up to a few thousand panels, fast above), "dense" or
@@ -39,6 +40,13 @@ def solve(model: Model, *, method: str = "auto", tol: float = 1e-6, progress=Non
     Floating conductors carry zero net charge and are left out of the matrix; with a
     ground plane the plane is the reference of the mutual form.
 
+    Error estimates (see :mod:`tricharge.bem.convergence`): ``levels`` >= 2 solves the
+    model and ``levels - 1`` uniform refinements of it and extrapolates; ``accuracy`` (a
+    fraction, e.g. 0.005) refines adaptively until every entry that matters has a relative
+    estimate below it or the next mesh would exceed ``max_panels``. Either way the result
+    carries ``error_estimate`` (farads) and ``study``; ``project`` moves new vertices onto
+    an exact surface (tests). Per-panel data stay on the model's own panels.
+
     >>> import tricharge
     >>> from tricharge import shapes
     >>> v, t = shapes.sphere(radius=1.0, frequency=4)
@@ -46,7 +54,21 @@ def solve(model: Model, *, method: str = "auto", tol: float = 1e-6, progress=Non
     >>> round(float(result.capacitance[0, 0]) * 1e12, 1)  # 4 pi eps0 x 1 m = 111.3 pF; 320 panels
     109.8
     """
-    return solve_capacitance(problem_of(model), method=method, tol=tol, progress=progress)
+    from .bem import convergence
+
+    problem = problem_of(model)
+    if accuracy is not None and levels > 1:
+        raise OptionError("ask for either a uniform study (levels) or an adaptive one (accuracy), not both")
+    if accuracy is not None:
+        if max_panels <= len(problem.panels):
+            raise OptionError(f"{model.source}: the panel budget {max_panels:,} is not above the model's "
+                              f"{len(problem.panels):,} panels; raise it")
+        return convergence.adaptive_study(problem, accuracy, max_panels=max_panels, project=project, method=method,
+                                          tol=tol, progress=progress).result
+    if levels > 1:
+        return convergence.uniform_study(problem, levels, project=project, method=method, tol=tol,
+                                         progress=progress).result
+    return solve_capacitance(problem, method=method, tol=tol, progress=progress)
 
 
 @dataclass(frozen=True, repr=False)

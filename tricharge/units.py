@@ -90,3 +90,21 @@ def parse_field_strength(value, *, what: str = "field strength") -> float:
     if not match or (match.group(2) or "V/m") not in _FIELD_UNITS:
         raise OptionError(f"{what}: cannot read {value!r}; write e.g. '3kV/mm' (units: {', '.join(_FIELD_UNITS)})")
     return float(match.group(1)) * _FIELD_UNITS[match.group(2) or "V/m"]
+
+
+def parse_fraction(value, *, what: str = "value") -> float:
+    """A relative accuracy: ``"0.5%"`` or a fraction like ``0.005``; must lie in (0, 1).
+
+    >>> parse_fraction("0.5%"), parse_fraction("0.002")
+    (0.005, 0.002)
+    """
+    text = str(value).strip()
+    percent = text.endswith("%")
+    try:
+        number = float(text[:-1] if percent else text) / (100.0 if percent else 1.0)
+    except ValueError:
+        number = float("nan")
+    if not 0.0 < number < 1.0:
+        raise OptionError(f"{what}: cannot read {value!r} as a relative accuracy; write a percentage like 0.5% "
+                          "or a fraction like 0.005")
+    return number

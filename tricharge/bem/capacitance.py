@@ -87,6 +87,15 @@ def mutual_form(maxwell: np.ndarray) -> np.ndarray:
     return m
 
 
+def mutual_error(error: np.ndarray) -> np.ndarray:
+    """Error bound of the mutual form from that of the Maxwell form (both (K, K), farads):
+    the same on couplings, the row sum on the to-reference capacitors."""
+    e = np.asarray(error, dtype=float)
+    m = e.copy()
+    np.fill_diagonal(m, e.sum(axis=1))
+    return m
+
+
 def maxwell_from_charges(sigma: np.ndarray, areas: np.ndarray, labels: np.ndarray, n_conductors: int) -> np.ndarray:
     """Raw Maxwell matrix ``C[l, k] = sum over panels j of l of sigma[j, k] * area[j]``.
 
@@ -119,6 +128,9 @@ class Result:
     n_panels : N
     solve_time : seconds, assembly plus solve
     checks : MatrixChecks of the raw matrix
+    error_estimate : (K, K) farads, estimate of |capacitance - converged value| from a
+        refinement study (:mod:`~tricharge.bem.convergence`), or None without one
+    study : the study's levels, orders and status per entry (plain data), or None
     method : operator used ("dense" or "fast")
     converged, iterations, residual : from the linear solve
     """
@@ -138,6 +150,8 @@ class Result:
     timings: dict = field(default_factory=dict)
     reference: str = "infinity"
     floating: tuple[str, ...] = ()
+    error_estimate: np.ndarray | None = None
+    study: dict | None = None
 
     @property
     def mutual(self) -> np.ndarray:
@@ -156,9 +170,11 @@ class Result:
         matrix; per-panel densities follow (sums for nets, dropped for grounded)."""
         import dataclasses
 
-        names, matrix = self.conductors, self.capacitance
+        names, matrix, error = self.conductors, self.capacitance, self.error_estimate
         projection = np.eye(len(names))
         if nets:
+            if error is not None:  # triangle inequality on the sums
+                error = merge_conductors(error, names, nets)[0]
             matrix, new_names = merge_conductors(matrix, names, nets)
             member_of = {m: net for net, members in nets.items() for m in members}
             projection = np.array([[1.0 if member_of.get(n, n) == new else 0.0 for new in new_names] for n in names])
@@ -175,6 +191,8 @@ class Result:
         if grounded:
             matrix, kept = ground_conductors(matrix, names, grounded)
             keep = [names.index(n) for n in kept]
+            if error is not None:
+                error = error[np.ix_(keep, keep)]
             projection, names = projection[:, keep], kept
             if label == self.reference:
                 label = "ground (" + ", ".join(grounded) + ")"
@@ -182,7 +200,7 @@ class Result:
         owner = projection[old_index]  # (N, K') membership of each panel's conductor
         labels = np.where((self.labels >= 0) & owner.any(axis=1), owner.argmax(axis=1), -1)
         return dataclasses.replace(self, conductors=tuple(names), capacitance=matrix, sigma=self.sigma @ projection,
-                                   labels=labels, reference=label,
+                                   labels=labels, reference=label, error_estimate=error,
                                    checks=dataclasses.replace(check_matrix(matrix, list(names)),
                                                               asymmetry=self.checks.asymmetry))
 
@@ -207,7 +225,21 @@ class Result:
             "solve_time_s": self.solve_time,
             "timings_s": dict(self.timings),
             "checks": self.checks.to_dict(),
+            "error_estimate": None if self.error_estimate is None else self.error_estimate.tolist(),
+            "mutual_error_estimate": None if self.error_estimate is None else mutual_error(
+                self.error_estimate).tolist(),
+            "error_estimate_method": self.estimate_method,
+            "refinement_study": self.study,
         }
+
+    @property
+    def estimate_method(self) -> str:
+        """How ``error_estimate`` was obtained, in words."""
+        if self.error_estimate is None:
+            return "none: single solve, discretisation error not estimated"
+        from .convergence import ESTIMATE_METHOD
+
+        return f"{self.study['kind']} refinement study; {ESTIMATE_METHOD}"
 
 
 def capacitance_matrix(panels: Panels, labels, names, *, eps_r: float = 1.0, method: str = "auto",

@@ -129,11 +129,32 @@ def make_panels(vertices, triangles, *, source: str = "mesh") -> Panels:
     return Panels(*validate_surface(vertices, triangles, source=source))
 
 
-def split_triangles(vertices, triangles, mask) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def edge_ids(triangles) -> tuple[np.ndarray, np.ndarray]:
+    """Number the edges of a triangle mesh.
+
+    Returns edges (E, 2) sorted vertex pairs, and side (m, 3): the edge id of side k of
+    each triangle (vertex k to vertex k+1).
+    """
+    t = np.asarray(triangles, dtype=np.int64)
+    pairs = np.sort(np.stack([t, np.roll(t, -1, axis=1)], axis=2).reshape(-1, 2), axis=1)
+    edges, inverse = np.unique(pairs, axis=0, return_inverse=True)
+    return edges, inverse.reshape(-1, 3)
+
+
+def split_triangles(vertices, triangles, mask, *, conforming: bool = False,
+                    project=None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Split the triangles selected by ``mask`` into four at their edge midpoints.
 
-    Neighbours that are not split keep their edges, so the mesh may get hanging nodes;
-    piecewise-constant collocation does not need conforming panels.
+    With ``conforming=False`` neighbours that are not split keep their edges, so the mesh
+    may get hanging nodes (piecewise-constant collocation does not need conforming
+    panels). With ``conforming=True`` the split closes like red-green refinement (Bank,
+    Sherman & Weiser 1983): a triangle with two or three split edges is split into four,
+    one with a single split edge is bisected from that edge's midpoint to the opposite
+    vertex, so every edge is shared by whole sides and closed surfaces stay closed.
+
+    ``project(midpoints (k, 3), ends (k, 2, 3)) -> (k, 3)`` moves the new vertices onto
+    the exact surface the mesh approximates (see :func:`onto_sphere` and friends); the
+    default leaves them on the flat panels. Vertex order, hence normal direction, is kept.
 
     Returns
     -------
@@ -143,14 +164,90 @@ def split_triangles(vertices, triangles, mask) -> tuple[np.ndarray, np.ndarray, 
     v = np.asarray(vertices, dtype=np.float64)
     t = np.asarray(triangles, dtype=np.int64)
     mask = np.asarray(mask, dtype=bool)
-    chosen = t[mask]
-    edges = np.sort(np.stack([chosen, np.roll(chosen, -1, axis=1)], axis=2).reshape(-1, 2), axis=1)
-    unique, inverse = np.unique(edges, axis=0, return_inverse=True)
-    midpoints = 0.5 * (v[unique[:, 0]] + v[unique[:, 1]])
-    mid = (len(v) + inverse.ravel()).reshape(-1, 3)  # midpoint of edge k (vertex k to k+1) per triangle
-    a, b, c = chosen[:, 0], chosen[:, 1], chosen[:, 2]
-    ab, bc, ca = mid[:, 0], mid[:, 1], mid[:, 2]
-    children = np.stack([np.column_stack(x) for x in ((a, ab, ca), (ab, b, bc), (ca, bc, c), (ab, bc, ca))], axis=1)
-    new_triangles = np.vstack([t[~mask], children.reshape(-1, 3)])
-    parent = np.concatenate([np.flatnonzero(~mask), np.repeat(np.flatnonzero(mask), 4)])
+    edges, side = edge_ids(t)
+    marked = np.zeros(len(edges), dtype=bool)
+    marked[side[mask].ravel()] = True
+    if conforming:
+        while True:  # closure: two split sides make the third one split as well
+            full = marked[side].sum(axis=1) >= 2
+            grow = full & ~marked[side].all(axis=1)
+            if not grow.any():
+                break
+            marked[side[grow].ravel()] = True
+        red = marked[side].all(axis=1)
+        green = marked[side].sum(axis=1) == 1
+    else:
+        red, green = mask, np.zeros(len(t), dtype=bool)
+    used = np.flatnonzero(marked)
+    ends = v[edges[used]]
+    midpoints = ends.mean(axis=1)
+    if project is not None and len(used):
+        midpoints = np.asarray(project(midpoints, ends), dtype=np.float64)
+    number = np.full(len(edges), -1, dtype=np.int64)
+    number[used] = len(v) + np.arange(len(used))
+    mid = number[side]  # midpoint vertex of side k per triangle
+    a, b, c = t[red, 0], t[red, 1], t[red, 2]
+    ab, bc, ca = mid[red, 0], mid[red, 1], mid[red, 2]
+    red_children = np.stack([np.column_stack(x) for x in ((a, ab, ca), (ab, b, bc), (ca, bc, c), (ab, bc, ca))],
+                            axis=1).reshape(-1, 3)
+    g = np.flatnonzero(green)
+    k = np.argmax(marked[side[g]], axis=1)  # the split side of each green triangle
+    first, second, third = (t[g, (k + s) % 3] for s in range(3))
+    m = mid[g, k]
+    green_children = np.stack([np.column_stack([first, m, third]), np.column_stack([m, second, third])],
+                              axis=1).reshape(-1, 3)
+    keep = ~(red | green)
+    new_triangles = np.vstack([t[keep], red_children, green_children])
+    parent = np.concatenate([np.flatnonzero(keep), np.repeat(np.flatnonzero(red), 4), np.repeat(g, 2)])
     return np.vstack([v, midpoints]), new_triangles, parent
+
+
+def refine_uniformly(vertices, triangles, *, project=None):
+    """Every triangle into four (halves the panel size); see :func:`split_triangles`."""
+    return split_triangles(vertices, triangles, np.ones(len(triangles), dtype=bool), project=project)
+
+
+# -- exact surfaces for refinement tests: project(midpoints, ends) -> points ---------------
+
+def onto_sphere(center=(0.0, 0.0, 0.0), radius: float = 1.0):
+    """Radial projection onto the sphere |x - center| = radius (metres)."""
+    return onto_spheres([(center, radius)])
+
+
+def onto_spheres(spheres):
+    """Projection onto the nearest of several spheres [(center (3,), radius), ...]."""
+    centers = np.array([c for c, _ in spheres], dtype=np.float64)
+    radii = np.array([r for _, r in spheres], dtype=np.float64)
+
+    def project(points, ends):
+        offset = points[:, None, :] - centers[None, :, :]
+        distance = np.linalg.norm(offset, axis=2)
+        k = np.argmin(np.abs(distance - radii[None, :]), axis=1)
+        rows = np.arange(len(points))
+        return centers[k] + offset[rows, k] * (radii[k] / distance[rows, k])[:, None]
+    return project
+
+
+def onto_ellipsoid(center=(0.0, 0.0, 0.0), semi_axes=(1.0, 1.0, 1.0)):
+    """Projection along the ray from ``center`` onto the ellipsoid with ``semi_axes`` (metres)."""
+    c, axes = np.asarray(center, dtype=np.float64), np.asarray(semi_axes, dtype=np.float64)
+
+    def project(points, ends):
+        d = points - c
+        return c + d / np.sqrt(((d / axes) ** 2).sum(axis=1))[:, None]
+    return project
+
+
+def onto_disk_rim(center=(0.0, 0.0, 0.0), radius: float = 1.0, tolerance: float = 1e-9):
+    """For a flat disk in a plane z = const: midpoints of edges whose two ends lie on the
+    rim move out onto the circle of ``radius``; all others stay where they are."""
+    c = np.asarray(center, dtype=np.float64)
+
+    def project(points, ends):
+        r_ends = np.linalg.norm((ends - c)[:, :, :2], axis=2)
+        on_rim = np.all(np.abs(r_ends - radius) <= tolerance * radius, axis=1)
+        out = points.copy()
+        d = out[on_rim, :2] - c[:2]
+        out[on_rim, :2] = c[:2] + d * (radius / np.linalg.norm(d, axis=1))[:, None]
+        return out
+    return project

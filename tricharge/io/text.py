@@ -7,8 +7,9 @@ import numpy as np
 from ..units import format_eng, prefix_for
 
 
-def matrix_table(names, matrix, unit: str = "F", digits: int = 5) -> str:
-    """Square matrix with row and column names, one engineering prefix for all cells.
+def matrix_table(names, matrix, unit: str = "F", digits: int = 5, errors=None) -> str:
+    """Square matrix with row and column names, one engineering prefix for all cells;
+    with ``errors`` (same shape) every cell reads ``value ± estimate``.
 
     >>> print(matrix_table(["a", "b"], [[2e-12, -1e-12], [-1e-12, 3e-12]]))
               a        b
@@ -23,6 +24,8 @@ def matrix_table(names, matrix, unit: str = "F", digits: int = 5) -> str:
     integer_digits = len(str(int(np.max(np.abs(m)) / scale))) if m.size else 1
     decimals = max(0, digits - integer_digits)
     cells = [[f"{x / scale:.{decimals}f}" for x in row] for row in m]
+    if errors is not None:
+        cells = [[f"{c} ± {e / scale:.{decimals}f}" for c, e in zip(row, err)] for row, err in zip(cells, errors)]
     width = max([len(n) for n in names] + [len(c) for row in cells for c in row]) + 2
     name_width = max(len(n) for n in names) + 1
     lines = [" " * name_width + "".join(n.rjust(width) for n in names)]
@@ -32,17 +35,18 @@ def matrix_table(names, matrix, unit: str = "F", digits: int = 5) -> str:
     return "\n".join(lines)
 
 
-def mutual_list(names, mutual, reference: str = "infinity") -> str:
-    """One line per capacitor of the mutual (SPICE) form: couplings, then to the reference."""
+def mutual_list(names, mutual, reference: str = "infinity", errors=None) -> str:
+    """One line per capacitor of the mutual (SPICE) form: couplings, then to the
+    reference; with ``errors`` (mutual form of the estimate) each gets ``± estimate``."""
     m = np.asarray(mutual, dtype=float)
     k = len(names)
     width = max(len(n) for n in names) * 2 + 5
-    lines = []
-    for a in range(k):
-        for b in range(a + 1, k):
-            lines.append(f"  {(names[a] + ' - ' + names[b]).ljust(width)} {format_eng(m[a, b], 'F')}")
-    for a in range(k):
-        lines.append(f"  {(names[a] + ' - ' + reference).ljust(width)} {format_eng(m[a, a], 'F')}")
+
+    def line(a, b, other):
+        text = f"  {(names[a] + ' - ' + other).ljust(width)} {format_eng(m[a, b], 'F')}"
+        return text if errors is None else f"{text} ± {format_eng(errors[a, b], 'F')}"
+    lines = [line(a, b, names[b]) for a in range(k) for b in range(a + 1, k)]
+    lines += [line(a, a, reference) for a in range(k)]
     return "\n".join(lines)
 
 
@@ -75,14 +79,50 @@ def result_report(result, *, source: str, unit: str, version: str) -> str:
            if result.method == "fast" else "dense solve")
     head = (f"tricharge {version}: {source} (unit {unit}), {plural(len(names), 'conductor')}, "
             f"{plural(result.n_panels, 'panel')}, {how} in {result.solve_time:.2f} s{floating}")
+    errors = result.error_estimate
+    reference = "ground" if result.reference == "ground plane" else result.reference
+    if errors is None:
+        mutual = mutual_list(names, result.mutual, reference)
+        closing = ("Discretisation error not estimated (single solve): add --levels 3 or --accuracy 0.5% for "
+                   "value ± estimate.")
+    else:
+        from ..bem.capacitance import mutual_error
+
+        mutual = mutual_list(names, result.mutual, reference, mutual_error(errors))
+        closing = study_report(result.study)
+    kind = "" if errors is None else ", extrapolated ± estimated error"
     return "\n\n".join([
         head,
-        "Capacitance matrix, Maxwell form (Q = C V):\n" + matrix_table(names, result.capacitance),
-        "Mutual form (the capacitors of a SPICE netlist):\n"
-        + mutual_list(names, result.mutual, "ground" if result.reference == "ground plane" else result.reference),
+        f"Capacitance matrix, Maxwell form (Q = C V){kind}:\n" + matrix_table(names, result.capacitance, errors=errors),
+        "Mutual form (the capacitors of a SPICE netlist):\n" + mutual,
         "Checks:\n" + checks_text(result.checks),
-        "Discretisation error is not estimated yet: refine the mesh and compare to judge it.",
+        closing,
     ])
+
+
+def study_report(study: dict) -> str:
+    """What a refinement study did and how far to trust its estimates (``Result.study``)."""
+    from ..bem.convergence import ESTIMATE_METHOD, EXTRAPOLATED
+
+    status = np.array(study["status"], dtype=object)
+    order = np.array([[np.nan if p is None else p for p in row] for row in study["observed_order"]])
+    levels = " -> ".join(f"{n:,}" for n in study["panels_per_level"])
+    seconds = " + ".join(f"{t:.1f}" for t in study["seconds_per_level"])
+    lines = [f"Refinement study ({study['kind']}): panels {levels}; solve times {seconds} s."]
+    if study["kind"] == "adaptive":
+        lines.append(f"  Target {study['target']:.2%} relative on every entry of at least 1% of its row: "
+                     f"{study['stop']}.")
+    counts = ", ".join(f"{int((status == s).sum())} {s}" for s in dict.fromkeys(status.ravel()))
+    seen = order[np.isfinite(order)]
+    orders = f"; observed order {seen.min():.2f}..{seen.max():.2f}" if len(seen) else ""
+    lines.append(f"  Entries: {counts}{orders}.")
+    if (status != EXTRAPOLATED).any() and "not asymptotic" in status:
+        lines.append("  Entries marked not asymptotic did not converge steadily: they show the finest value with "
+                     "3x its last change. Refine further before relying on them.")
+    lines += [f"  {note}" for note in study["notes"]]
+    lines.append(f"  Method: {ESTIMATE_METHOD}. The estimate is for the mesh's geometry: it says nothing about "
+                 "how well the mesh follows the real part.")
+    return "\n".join(lines)
 
 
 def _table(rows: list[list[str]], right: set[int]) -> list[str]:
