@@ -267,7 +267,8 @@ def capacitance_matrix(panels: Panels, labels, names, *, eps_r: float = 1.0, met
     return solve_capacitance(problem, method=method, tol=tol, progress=progress)
 
 
-def solve_capacitance(problem: Problem, *, method: str = "auto", tol: float = 1e-6, progress=None) -> Result:
+def solve_capacitance(problem: Problem, *, method: str = "auto", tol: float = 1e-6, progress=None,
+                      start=None) -> Result:
     """Maxwell capacitance matrix among the non-floating conductors of a problem.
 
     Parameters
@@ -277,6 +278,8 @@ def solve_capacitance(problem: Problem, *, method: str = "auto", tol: float = 1e
     tol : relative residual asked of the iterative solve (fast path)
     progress : optional ``progress(stage, done, total)``; stages "near field",
         "preconditioner" and "iterations" (done = iteration, total = the cap)
+    start : (N, K') C/m^2, a guess of ``sigma`` for the iterative solve (a coarser mesh's
+        solution carried over in a refinement study), or None
 
     Returns
     -------
@@ -293,7 +296,11 @@ def solve_capacitance(problem: Problem, *, method: str = "auto", tol: float = 1e
     n = len(panels)
     rhs = np.zeros((operator.shape[0], len(driven)))
     rhs[:n] = problem.conductor[:, None] == driven[None, :]  # 1 V on one conductor per column
-    solution = _solve(operator, rhs, tol, preconditioner, report)
+    x0 = None
+    if start is not None:  # floating potentials (rows after n) start at zero
+        x0 = np.zeros_like(rhs)
+        x0[:n] = np.asarray(start, dtype=np.float64) / FOUR_PI_EPS0
+    solution = _solve(operator, rhs, tol, preconditioner, report, x0=x0)
     t2 = time.perf_counter()
     sigma = solution.x[:n] * FOUR_PI_EPS0
     labels = np.full(n, -1, dtype=np.int64)
@@ -327,9 +334,9 @@ def _prepare(problem: Problem, method: str, tol: float, report):
     return operator, preconditioner
 
 
-def _solve(operator, rhs, tol, preconditioner, report, maxiter: int = 20):
+def _solve(operator, rhs, tol, preconditioner, report, maxiter: int = 20, x0=None):
     return solve_linear(operator, rhs, tol=tol, preconditioner=preconditioner, restart=50, maxiter=maxiter,
-                        callback=lambda it, res: report("iterations", it, 50 * maxiter))
+                        callback=lambda it, res: report("iterations", it, 50 * maxiter), x0=x0)
 
 
 @dataclass(frozen=True, repr=False)

@@ -58,7 +58,7 @@ def _solve_lu(matrix: np.ndarray, b: np.ndarray) -> np.ndarray:
 
 
 def gmres(operator, b, *, tol: float = 1e-8, restart: int = 50, maxiter: int = 200, preconditioner=None,
-          callback=None):
+          callback=None, x0=None):
     """Restarted GMRES for K right-hand sides in lockstep, right-preconditioned.
 
     Each column has its own Krylov space, but every iteration applies the operator to all
@@ -75,6 +75,7 @@ def gmres(operator, b, *, tol: float = 1e-8, restart: int = 50, maxiter: int = 2
     maxiter : restart cycles at most
     preconditioner : LinearOperator approximating the inverse, or None
     callback : ``callback(iteration, residuals (K,))`` after every iteration
+    x0 : (N, K) starting guess (e.g. a coarser mesh's solution), or None for zeros
 
     Returns
     -------
@@ -82,7 +83,7 @@ def gmres(operator, b, *, tol: float = 1e-8, restart: int = 50, maxiter: int = 2
     """
     apply_m = (lambda v: v) if preconditioner is None else preconditioner.matmat
     n, k = b.shape
-    x = np.zeros((n, k))
+    x = np.zeros((n, k)) if x0 is None else np.array(x0, dtype=np.float64).reshape(n, k)
     norms = np.linalg.norm(b, axis=0)
     norms[norms == 0] = 1.0
     iterations = np.zeros(k, dtype=int)
@@ -139,7 +140,7 @@ def gmres(operator, b, *, tol: float = 1e-8, restart: int = 50, maxiter: int = 2
 
 def solve_linear(operator: LinearOperator, b, *, tol: float = 1e-8, maxiter: int = 200,
                  preconditioner: LinearOperator | None = None, restart: int = 50,
-                 raise_on_failure: bool = True, callback=None) -> LinearSolution:
+                 raise_on_failure: bool = True, callback=None, x0=None) -> LinearSolution:
     """Solve ``operator @ x = b``.
 
     Parameters
@@ -151,6 +152,7 @@ def solve_linear(operator: LinearOperator, b, *, tol: float = 1e-8, maxiter: int
     preconditioner : approximate inverse for GMRES (ignored by LU)
     raise_on_failure : raise :class:`SolverError` when GMRES misses ``tol``
     callback : ``callback(iteration, residuals)`` after every GMRES iteration
+    x0 : starting guess for GMRES, shaped like ``b`` (ignored by LU)
 
     Returns
     -------
@@ -164,7 +166,7 @@ def solve_linear(operator: LinearOperator, b, *, tol: float = 1e-8, maxiter: int
         x, method, iterations = _solve_lu(operator.matrix, b), "lu", 0
     else:
         x, per_column = gmres(operator, b, tol=tol, restart=restart, maxiter=maxiter,
-                              preconditioner=preconditioner, callback=callback)
+                              preconditioner=preconditioner, callback=callback, x0=x0)
         method, iterations = "gmres", int(per_column.max())
     residual = relative_residual(operator, x, b)
     converged = bool(np.isfinite(residual) and residual <= max(tol, 1e-10) * 10)
