@@ -130,3 +130,24 @@ def test_line_chart_and_heat_map_are_pictures(tmp_path):
     png = matrix_heatmap(["a", "b"], np.array([[2.0, 1.0], [1.0, 3.0]]) * 1e-12)
     (tmp_path / "heat.png").write_bytes(png)
     assert matplotlib.image.imread(tmp_path / "heat.png")[:, :, :3].std() > 0.05
+
+
+def test_study_chart_and_report_with_levels(tmp_path, capsys):
+    """solve --study-png draws the study; report --levels shows value ± estimate and the chart."""
+    import matplotlib.image
+    import trimesh
+
+    path = tmp_path / "pair.stl"
+    v, t, _ = shapes.combine(shapes.sphere(1.0, 2), shapes.cube(1.0, 2, center=(2.5, 0, 0)))
+    trimesh.Trimesh(v, t, process=False).export(path)
+    chart = tmp_path / "study.png"
+    assert main(["solve", str(path), "-q", "--study-png", str(chart)]) == 2
+    assert "add --levels 3 or --accuracy 0.5%" in capsys.readouterr().err and not chart.exists()
+    assert main(["solve", str(path), "-q", "--levels", "3", "--study-png", str(chart)]) == 0
+    pixels = matplotlib.image.imread(chart)[:, :, :3]
+    assert pixels.shape[0] > 200 and pixels.std() > 0.05
+    page = tmp_path / "report.html"
+    assert main(["report", str(path), "--html", str(page), "--levels", "2", "-q"]) == 0
+    text = page.read_text()
+    assert "Maxwell form (Q = C V) ± estimated error" in text and text.count(" ± ") >= 4 + 3
+    assert "Refinement study" in text and text.count("data:image/png;base64,") == 2  # heat map and study

@@ -86,8 +86,16 @@ def _solve_and_report(path: Path, unit: str | None, json_path: Path | None, quie
     if json_path is not None:
         write_json(json_path, result, **provenance)
         _echo(f"\nwrote {json_path}", quiet)
+    chart = outputs.pop("study_png", None)
     outputs_module.write_matrix_outputs(result, full, model, outputs, form, drop_below, provenance,
                                         lambda text: _echo(text, quiet))
+    if chart is not None:
+        from .io.export import write_bytes_atomic
+        from .viz.plots import convergence_chart
+
+        write_bytes_atomic(chart, convergence_chart(full.conductors, full.study, full.capacitance,
+                                                    full.error_estimate))
+        _echo(f"wrote {chart}", quiet)
 
 
 @click.group(context_settings={"help_option_names": ["-h", "--help"]})
@@ -142,17 +150,21 @@ _tol_option = click.option("--tol", type=click.FloatRange(1e-12, 1e-2), default=
                    "estimated error below this, e.g. 0.5%%.")
 @click.option("--max-panels", type=click.IntRange(100, 10_000_000), default=200_000, show_default=True,
               help="Panel budget of --accuracy.")
+@click.option("--study-png", "study_png", type=click.Path(dir_okay=False, path_type=Path),
+              help="Chart the refinement study (needs --levels or --accuracy) as a PNG.")
 @_quiet_option
 def solve(input_path: Path, unit: str | None, json_path: Path | None, method: str, tol: float, merge, grounded,
           reference, spice_path, drop_below, csv_path, npz_path, form, vtu_path, levels: int, accuracy,
-          max_panels: int, quiet: bool):
+          max_panels: int, study_png: Path | None, quiet: bool):
     """Capacitance matrix of the conductors in INPUT: a surface mesh (.msh .stl .obj .ply
     .vtk .vtu) or a model file (.toml) that says what the mesh surfaces are.
 
     In a bare mesh each Gmsh physical surface group is one conductor; without groups,
     each connected piece of surface is one, named c1, c2, ... .
     """
-    outputs = dict(spice=spice_path, csv=csv_path, npz=npz_path, vtu=vtu_path)
+    outputs = dict(spice=spice_path, csv=csv_path, npz=npz_path, vtu=vtu_path, study_png=study_png)
+    if study_png is not None and levels == 1 and accuracy is None:
+        raise OptionError("--study-png charts a refinement study: add --levels 3 or --accuracy 0.5%")
     nets = {}
     for item in merge:
         net, sep, members = item.partition("=")
@@ -404,8 +416,10 @@ def _saved_picture(path: Path, quantity: str, log_scale: bool):
 @_unit_option
 @_volts_option
 @_method_option
+@click.option("--levels", type=click.IntRange(1, 4), default=1, show_default=True,
+              help="Refinement levels for the capacitance: 2 or more add value ± estimate and a chart.")
 @_quiet_option
-def report(input_path: Path, html_path: Path, unit, volts, method, quiet):
+def report(input_path: Path, html_path: Path, unit, volts, method, levels: int, quiet):
     """A report of INPUT a designer can hand on: model, capacitance matrix in both forms,
     checks, and, when every conductor has a voltage, hot spots with cautions and pictures."""
     from .io.export import check_writable, write_atomic
@@ -414,18 +428,21 @@ def report(input_path: Path, html_path: Path, unit, volts, method, quiet):
     from .io.text import CAUTIONS
     from .pipeline import solve, solve_field
     from .viz import field_picture
-    from .viz.plots import matrix_heatmap
+    from .viz.plots import convergence_chart, matrix_heatmap
     from .viz.render import render_png
     from .viz.report import report_html
 
     check_writable(html_path)
     model = load(input_path, unit=unit)
     voltages = _pairs(volts, lambda v, what: parse_quantity(v, "V", what=what), "--volts")
-    result = solve(model, method=method)
+    result = solve(model, method=method, levels=levels)
     field_result = None
     if all(c.floating or c.voltage is not None or c.name in voltages for c in model.conductors):
         field_result = solve_field(model, voltages, method=method)
     images = [("Mutual capacitances", matrix_heatmap(result.conductors, result.mutual, reference=result.reference))]
+    if result.study is not None:
+        images.append(("Refinement study: self capacitances per level against the extrapolated value",
+                       convergence_chart(result.conductors, result.study, result.capacitance, result.error_estimate)))
     if field_result is not None:
         import tempfile
 
@@ -438,7 +455,10 @@ def report(input_path: Path, html_path: Path, unit, volts, method, quiet):
     survey = model.survey
     rows = [[p.name, p.kind, p.panels, f"{p.area:.4g} m2", p.detail] for p in survey.parts]
     summary = [f"{len(model.conductors)} conductors, {len(model.interfaces)} interfaces, {model.n_panels} panels, "
-               f"unit {model.unit}", f"solved by the {result.method} method in {result.solve_time:.1f} s",
+               f"unit {model.unit}", f"solved by the {result.method} method in {result.solve_time:.1f} s"
+               + (f" ({result.study['kind']} refinement study, panels "
+                  + " -> ".join(f"{n:,}" for n in result.study["panels_per_level"]) + ")" if result.study else
+                  "; discretisation error not estimated (--levels 3 adds it)"),
                f"reference of the mutual form: {result.reference}"]
     page = report_html(title=f"tricharge report: {input_path.name}", summary=summary, model_rows=rows, result=result,
                        field=field_result, images=images, cautions=CAUTIONS,

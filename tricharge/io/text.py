@@ -77,6 +77,10 @@ def result_report(result, *, source: str, unit: str, version: str) -> str:
     floating = f"; floating, at zero net charge: {', '.join(result.floating)}" if result.floating else ""
     how = (f"fast solve ({result.iterations} GMRES iterations, residual {result.residual:.1e})"
            if result.method == "fast" else "dense solve")
+    if result.study is not None:
+        levels = result.study["panels_per_level"]
+        how = (f"{result.study['kind']} refinement study to {levels[-1]:,} panels in {len(levels)} levels, "
+               f"{how} on the finest,")
     head = (f"tricharge {version}: {source} (unit {unit}), {plural(len(names), 'conductor')}, "
             f"{plural(result.n_panels, 'panel')}, {how} in {result.solve_time:.2f} s{floating}")
     errors = result.error_estimate
@@ -102,7 +106,7 @@ def result_report(result, *, source: str, unit: str, version: str) -> str:
 
 def study_report(study: dict) -> str:
     """What a refinement study did and how far to trust its estimates (``Result.study``)."""
-    from ..bem.convergence import ESTIMATE_METHOD, EXTRAPOLATED
+    from ..bem.convergence import ESTIMATE_METHOD, NOT_ASYMPTOTIC, TWO_LEVELS
 
     status = np.array(study["status"], dtype=object)
     order = np.array([[np.nan if p is None else p for p in row] for row in study["observed_order"]])
@@ -116,9 +120,12 @@ def study_report(study: dict) -> str:
     seen = order[np.isfinite(order)]
     orders = f"; observed order {seen.min():.2f}..{seen.max():.2f}" if len(seen) else ""
     lines.append(f"  Entries: {counts}{orders}.")
-    if (status != EXTRAPOLATED).any() and "not asymptotic" in status:
+    if NOT_ASYMPTOTIC in status:
         lines.append("  Entries marked not asymptotic did not converge steadily: they show the finest value with "
                      "3x its last change. Refine further before relying on them.")
+    if TWO_LEVELS in status:
+        lines.append("  Two levels show no convergence order: each entry is the finer value with 3x its last "
+                     "change. Three levels give an extrapolated value and a tighter estimate.")
     lines += [f"  {note}" for note in study["notes"]]
     lines.append(f"  Method: {ESTIMATE_METHOD}. The estimate is for the mesh's geometry: it says nothing about "
                  "how well the mesh follows the real part.")

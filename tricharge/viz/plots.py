@@ -60,3 +60,29 @@ def line_profile(distance, magnitude, *, unit: str, title: str) -> bytes:
     data = _png(figure)
     plt.close(figure)
     return data
+
+
+def convergence_chart(names, study: dict, value, error) -> bytes:
+    """PNG bytes: each self capacitance per refinement level against panel count, with
+    the extrapolated value and its estimated error as a band (``study`` as in
+    ``Result.study``; ``value``, ``error`` (K, K) farads)."""
+    plt = _pyplot()
+    panels = np.asarray(study["panels_per_level"], dtype=float)
+    levels = np.asarray(study["matrices_per_level"], dtype=float)
+    figure, axes = plt.subplots(figsize=(6.5, 4))
+    for k, name in enumerate(names[:8]):
+        c, e = value[k, k], error[k, k]
+        line, = axes.plot(panels, (levels[:, k, k] / c - 1) * 100, "o-", label=name)
+        axes.axhspan(-e / c * 100, e / c * 100, color=line.get_color(), alpha=0.12)
+    axes.axhline(0.0, color="black", linewidth=0.8)
+    axes.set_xscale("log")
+    axes.set_xticks(panels, labels=[f"{int(n):,}" for n in panels])
+    axes.minorticks_off()
+    axes.set_xlabel("panels")
+    axes.set_ylabel("self capacitance vs extrapolated (%)")
+    axes.set_title(f"Refinement study ({study['kind']}); bands: estimated error")
+    axes.grid(True, alpha=0.3)
+    axes.legend(fontsize=8)
+    data = _png(figure)
+    plt.close(figure)
+    return data

@@ -18,11 +18,16 @@ def _image(png: bytes, alt: str) -> str:
     return f'<img alt="{html.escape(alt)}" src="data:image/png;base64,{base64.b64encode(png).decode()}">'
 
 
-def _matrix_table(names, matrix, caption: str) -> str:
+def _matrix_table(names, matrix, caption: str, errors=None) -> str:
     head = "".join(f"<th>{html.escape(n)}</th>" for n in names)
+    errors = np.zeros_like(np.asarray(matrix)) if errors is None else np.asarray(errors)
+    show = np.any(errors)
+
+    def cell(x, e):
+        return html.escape(format_eng(x, "F") + (f" ± {format_eng(e, 'F')}" if show else ""))
     rows = "".join(
-        f"<tr><th>{html.escape(n)}</th>" + "".join(f"<td>{html.escape(format_eng(x, 'F'))}</td>" for x in row) + "</tr>"
-        for n, row in zip(names, np.asarray(matrix)))
+        f"<tr><th>{html.escape(n)}</th>" + "".join(f"<td>{cell(x, e)}</td>" for x, e in zip(row, err)) + "</tr>"
+        for n, row, err in zip(names, np.asarray(matrix), errors))
     return f'<table class="matrix"><caption>{html.escape(caption)}</caption><tr><th></th>{head}</tr>{rows}</table>'
 
 
@@ -40,12 +45,17 @@ def report_html(*, title: str, summary: list[str], model_rows: list, result, fie
     result : capacitance Result; field : FieldResult or None (hot spots)
     images : [(caption, png bytes)]; cautions : text; provenance : key -> value
     """
+    from ..bem.capacitance import mutual_error
+
+    errors = result.error_estimate
+    estimated = " ± estimated error" if errors is not None else ""
     parts = [f"<h1>{html.escape(title)}</h1>", "<ul>" + "".join(f"<li>{html.escape(s)}</li>" for s in summary) + "</ul>",
              "<h2>Model</h2>", _rows(["part", "kind", "panels", "area", "condition"], model_rows),
              "<h2>Capacitance</h2>",
-             _matrix_table(result.conductors, result.capacitance, "Maxwell form (Q = C V)"),
+             _matrix_table(result.conductors, result.capacitance, f"Maxwell form (Q = C V){estimated}", errors),
              _matrix_table(result.conductors, result.mutual,
-                           f"Mutual form: couplings; diagonal to {result.reference}"),
+                           f"Mutual form: couplings; diagonal to {result.reference}{estimated}",
+                           None if errors is None else mutual_error(errors)),
              "<h2>Checks</h2>",
              _rows(["check", "value"], [["asymmetry", f"{result.checks.asymmetry:.1e}"],
                                         ["self capacitances positive", result.checks.positive_diagonal],
