@@ -165,3 +165,32 @@ def test_coarse_solution_carried_over_saves_iterations():
     warm = solve_capacitance(fine, method="fast", start=coarse.sigma[parent])
     assert warm.iterations < cold.iterations
     np.testing.assert_allclose(warm.capacitance, cold.capacitance, rtol=1e-5)
+
+
+def test_study_reports_progress_per_level():
+    stages = []
+    problem = problem_from_arrays(*shapes.sphere(1.0, 2), np.zeros(80, np.int64))
+    cv.uniform_study(problem, 2, progress=lambda stage, done, total: stages.append(stage))
+    assert stages[0] == "level 1/2 (80 panels)" and "level 2/2 (320 panels)" in stages
+
+
+def test_studies_run_with_plane_dielectric_and_floating_parts():
+    """A sphere in a dielectric shell over a ground plane, next to a floating sphere: both
+    study kinds run (dense and fast paths), keep every panel's role, and sum the charges
+    back onto the base panels."""
+    core = shapes.sphere(0.5, 2, center=(0, 0, 1.5))
+    shell = shapes.sphere(0.8, 2, center=(0, 0, 1.5))
+    free = shapes.sphere(0.4, 2, center=(2.0, 0, 1.5))
+    v, t, part = shapes.combine(core, shell, free)
+    conductor = np.where(part == 0, 0, np.where(part == 2, 1, -1))
+    permittivity = np.where(part == 0, 3.0, 1.0)
+    contrast = np.where(part == 1, (1.0 - 3.0) / (1.0 + 3.0), 0.0)
+    problem = problem_from_arrays(v, t, conductor, permittivity, contrast, floating=[False, True], ground_z=0.0)
+    single = solve_capacitance(problem)
+    for method in ("dense", "fast"):
+        study = cv.uniform_study(problem, 3, method=method)
+        assert study.result.capacitance.shape == (1, 1) and study.result.floating == ("c2",)
+        assert abs(study.result.capacitance[0, 0] / single.capacitance[0, 0] - 1) < 0.05
+        np.testing.assert_array_equal(study.result.labels, np.where(conductor == 0, 0, -1))
+    adaptive = cv.adaptive_study(problem, 0.02, max_panels=20_000)
+    assert adaptive.stop in ("accuracy reached", "panel budget reached") and len(adaptive.panels) >= 2

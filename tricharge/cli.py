@@ -42,8 +42,9 @@ class _Progress:
         if stage != self.stage:
             self.close()
             self.stage = stage
-            unit = "it" if stage == "iterations" else "panels" if stage == "near field" else "step"
-            self.bar = tqdm(total=None if stage == "iterations" else total, desc=stage, unit=unit, leave=False,
+            kind = stage.rsplit(": ", 1)[-1]  # refinement studies prefix "level 2/3: "
+            unit = "it" if kind == "iterations" else "panels" if kind == "near field" else "step"
+            self.bar = tqdm(total=None if kind == "iterations" else total, desc=stage, unit=unit, leave=False,
                             file=sys.stderr)
         self.bar.update(done - self.bar.n)
 
