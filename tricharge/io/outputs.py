@@ -37,6 +37,11 @@ def write_matrix_outputs(result, full, model, outputs: dict, form: str, drop_bel
                   f"input {origin['input_file']} sha256 {origin['input_sha256']}",
                   f"unit {origin['unit']}, method {result.method}, {result.n_panels} panels, "
                   f"created {origin['created']}")
+        if result.study is not None:
+            worst = float(np.max(result.error_estimate / np.abs(result.capacitance).max()))
+            header += (f"values extrapolated by a {result.study['kind']} refinement study to "
+                       f"{result.study['panels_per_level'][-1]} panels; largest error estimate "
+                       f"{worst:.2%} of the largest entry",)
         name = re.sub(r"[^A-Za-z0-9_]", "_", Path(origin["input_file"]).stem) or "tricharge"
         circuit = subcircuit(result.mutual, result.conductors, name=name, reference=result.reference,
                              drop_below=drop_below, header=header)

@@ -127,6 +127,7 @@ def study_report(study: dict) -> str:
         lines.append("  Two levels show no convergence order: each entry is the finer value with 3x its last "
                      "change. Three levels give an extrapolated value and a tighter estimate.")
     lines += [f"  {note}" for note in study["notes"]]
+    lines.append("  A to-reference capacitor's estimate is the sum of its row's estimates (a bound).")
     lines.append(f"  Method: {ESTIMATE_METHOD}. The estimate is for the mesh's geometry: it says nothing about "
                  "how well the mesh follows the real part.")
     return "\n".join(lines)
