@@ -10,13 +10,14 @@ in Roache, J. Fluids Eng. 116 (1994) 405-413).
 
 Error estimate of an extrapolated entry: the error the finest solve would still have
 after one more refinement, ``|C_extrapolated - C_finest| / r^p`` (our own rule, no
-source: it says the extrapolation is worth at least one more level; checked against the
-sphere, cube, disk and two-sphere references in tests/reference/test_convergence.py: it
-covered the true error on all sixteen level sets measured and was 1.3-8.4x larger on fifteen,
-45x on one where the extrapolation landed near the exact value by luck), and never below the solver's own accuracy
-(``FLOOR``, measured: the fast and dense paths agree within 1e-4). Entries whose sequence
-is not monotone with 0.5 <= p <= 6 are "not asymptotic": they keep the finest value and
-get three times its last change (Roache's safety factor for two-level studies).
+source: it says the extrapolation is worth at least one more level), never below the
+solver's own accuracy (``FLOOR``, measured: the fast and dense paths agree within 1e-4).
+Checked against the sphere, spheroid, cube, disk and two-sphere references
+(tests/reference/test_convergence.py): it covered the true error on all sixteen level sets
+measured and was 1.3-8.4x larger on fifteen, 45x on one where the extrapolation landed
+near the exact value by luck. Entries whose sequence is not monotone with 0.5 <= p <= 6
+are "not asymptotic": they keep the finest value and get three times its last change
+(Roache's safety factor for two-level studies).
 """
 
 from __future__ import annotations
