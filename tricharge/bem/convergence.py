@@ -6,7 +6,7 @@ p is about 2 on smooth surfaces and lower where the charge density is singular
 (about 4/3 on a cube's edges, 1 on the rim of a thin sheet). Three solves whose panel
 sizes shrink by a known ratio give p for every matrix entry and an extrapolated value
 (Richardson, Phil. Trans. R. Soc. A 210 (1911) 307-357; the three-level order estimate as
-in Roache, J. Fluids Eng. 116 (1994) 405-413).
+in Roache, J. Fluids Eng. 116 (1994) 405-413; both citations from memory).
 
 Error estimate of an extrapolated entry: the error the finest solve would still have
 after one more refinement, ``|C_extrapolated - C_finest| / r^p`` (our own rule, no
@@ -245,7 +245,7 @@ def uniform_study(problem, levels: int = 3, *, project=None, method: str = "auto
 # -- adaptive refinement --------------------------------------------------------------------
 
 #: Dörfler's bulk criterion: refine the fewest panels that carry this share of the
-#: total indicator (Dörfler, SIAM J. Numer. Anal. 33 (1996) 1106-1124).
+#: total indicator (Dörfler, SIAM J. Numer. Anal. 33 (1996) 1106-1124; citation from memory).
 BULK = 0.7
 
 

@@ -148,7 +148,7 @@ def split_triangles(vertices, triangles, mask, *, conforming: bool = False,
     With ``conforming=False`` neighbours that are not split keep their edges, so the mesh
     may get hanging nodes (piecewise-constant collocation does not need conforming
     panels). With ``conforming=True`` the split closes like red-green refinement (Bank,
-    Sherman & Weiser 1983): a triangle with two or three split edges is split into four,
+    Sherman & Weiser 1983, from memory): a triangle with two or three split edges is split into four,
     one with a single split edge is bisected from that edge's midpoint to the opposite
     vertex, so every edge is shared by whole sides and closed surfaces stay closed.
 
