@@ -286,8 +286,9 @@ def adaptive_study(problem, accuracy: float, *, max_panels: int = 200_000, proje
     the next level would exceed ``max_panels``.
 
     Each step marks panels by Dörfler's bulk criterion on :func:`jump_indicator` and
-    refines them conformingly (red-green), so closed surfaces stay closed. Adaptive
-    meshes are not scaled copies of each other, so a single Richardson step is less
+    splits them into four, bisecting their neighbours to match (longest-edge bisection),
+    so closed surfaces stay closed and panels keep their shape. Adaptive meshes are not
+    scaled copies of each other, so a single Richardson step is less
     trustworthy than on uniform levels: the estimate is the larger of :func:`richardson`
     over the last three levels (panel size N^-1/2) and the change of the extrapolated
     value since the previous level, and the target counts as reached only from the

@@ -147,10 +147,12 @@ def split_triangles(vertices, triangles, mask, *, conforming: bool = False,
 
     With ``conforming=False`` neighbours that are not split keep their edges, so the mesh
     may get hanging nodes (piecewise-constant collocation does not need conforming
-    panels). With ``conforming=True`` the split closes like red-green refinement (Bank,
-    Sherman & Weiser 1983, from memory): a triangle with two or three split edges is split into four,
-    one with a single split edge is bisected from that edge's midpoint to the opposite
-    vertex, so every edge is shared by whole sides and closed surfaces stay closed.
+    panels). With ``conforming=True`` neighbours are bisected to match: every triangle
+    with a split side gets its longest side split too (repeated until nothing changes),
+    then is halved across its longest side and, where another side is split, halved again
+    there (longest-edge bisection, Rivara 1984, from memory). Every edge stays shared by
+    whole sides, closed surfaces stay closed, and repeated refinement keeps angles bounded
+    away from zero.
 
     ``project(midpoints (k, 3), ends (k, 2, 3)) -> (k, 3)`` moves the new vertices onto
     the exact surface the mesh approximates (see :func:`onto_sphere` and friends); the
@@ -168,16 +170,18 @@ def split_triangles(vertices, triangles, mask, *, conforming: bool = False,
     marked = np.zeros(len(edges), dtype=bool)
     marked[side[mask].ravel()] = True
     if conforming:
-        while True:  # closure: two split sides make the third one split as well
-            full = marked[side].sum(axis=1) >= 2
-            grow = full & ~marked[side].all(axis=1)
-            if not grow.any():
+        lengths = np.linalg.norm(v[edges[:, 0]] - v[edges[:, 1]], axis=1)[side]
+        longest = np.argmax(lengths, axis=1)
+        longest_edge = side[np.arange(len(t)), longest]
+        while True:
+            touched = marked[side].any(axis=1) & ~marked[longest_edge]
+            if not touched.any():
                 break
-            marked[side[grow].ravel()] = True
+            marked[longest_edge[touched]] = True
         red = marked[side].all(axis=1)
-        green = marked[side].sum(axis=1) == 1
+        bisected = marked[side].any(axis=1) & ~red
     else:
-        red, green = mask, np.zeros(len(t), dtype=bool)
+        red, bisected, longest = mask, np.zeros(len(t), dtype=bool), None
     used = np.flatnonzero(marked)
     ends = v[edges[used]]
     midpoints = ends.mean(axis=1)
@@ -185,21 +189,37 @@ def split_triangles(vertices, triangles, mask, *, conforming: bool = False,
         midpoints = np.asarray(project(midpoints, ends), dtype=np.float64)
     number = np.full(len(edges), -1, dtype=np.int64)
     number[used] = len(v) + np.arange(len(used))
-    mid = number[side]  # midpoint vertex of side k per triangle
+    mid = number[side]  # midpoint vertex of side k per triangle, -1 where not split
     a, b, c = t[red, 0], t[red, 1], t[red, 2]
     ab, bc, ca = mid[red, 0], mid[red, 1], mid[red, 2]
     red_children = np.stack([np.column_stack(x) for x in ((a, ab, ca), (ab, b, bc), (ca, bc, c), (ab, bc, ca))],
                             axis=1).reshape(-1, 3)
-    g = np.flatnonzero(green)
-    k = np.argmax(marked[side[g]], axis=1)  # the split side of each green triangle
-    first, second, third = (t[g, (k + s) % 3] for s in range(3))
-    m = mid[g, k]
-    green_children = np.stack([np.column_stack([first, m, third]), np.column_stack([m, second, third])],
-                              axis=1).reshape(-1, 3)
-    keep = ~(red | green)
-    new_triangles = np.vstack([t[keep], red_children, green_children])
-    parent = np.concatenate([np.flatnonzero(keep), np.repeat(np.flatnonzero(red), 4), np.repeat(g, 2)])
-    return np.vstack([v, midpoints]), new_triangles, parent
+    keep = ~(red | bisected)
+    children, parents = [t[keep], red_children], [np.flatnonzero(keep), np.repeat(np.flatnonzero(red), 4)]
+    if bisected.any():
+        children_b, parents_b = _bisect(t, mid, np.flatnonzero(bisected), longest)
+        children.append(children_b)
+        parents.append(parents_b)
+    return np.vstack([v, midpoints]), np.vstack(children), np.concatenate(parents)
+
+
+def _bisect(t, mid, rows, longest):
+    """Children of triangles whose longest side is split: halves across it, and each half
+    halved again across its other split side, if any. Returns (children, parent)."""
+    k = longest[rows]
+    p0, p1, p2 = (t[rows, (k + s) % 3] for s in range(3))  # longest side p0 -> p1
+    m, m1, m2 = (mid[rows, (k + s) % 3] for s in range(3))  # midpoints of p0p1, p1p2, p2p0
+    out, parent = [], []
+    for keep, tris in (
+        (m1 < 0, [(m, p1, p2)]),
+        (m1 >= 0, [(m, p1, m1), (m, m1, p2)]),
+        (m2 < 0, [(p0, m, p2)]),
+        (m2 >= 0, [(m, p2, m2), (m, m2, p0)]),
+    ):
+        for tri in tris:
+            out.append(np.column_stack([x[keep] for x in tri]))
+            parent.append(rows[keep])
+    return np.vstack(out), np.concatenate(parent)
 
 
 def refine_uniformly(vertices, triangles, *, project=None):
