@@ -139,6 +139,7 @@ def test_reductions_carry_the_error_estimate():
     assert merged.error_estimate[0, 1] == pytest.approx(e[:2, 2].sum())
     grounded = r.reduced(grounded=["c2"])
     np.testing.assert_array_equal(grounded.error_estimate, e[np.ix_([0, 2], [0, 2])])
+    assert "before reduction (c1, c2, c3)" in merged.study["notes"][-1] and r.study["notes"] == []
 
 
 def test_adaptive_study_stops_at_the_panel_budget():

@@ -199,8 +199,13 @@ class Result:
         old_index = np.where(self.labels >= 0, self.labels, 0)
         owner = projection[old_index]  # (N, K') membership of each panel's conductor
         labels = np.where((self.labels >= 0) & owner.any(axis=1), owner.argmax(axis=1), -1)
+        study = self.study
+        if study is not None:
+            study = dict(study, notes=list(study["notes"]) + [
+                f"levels, orders and status are those of the conductors before reduction "
+                f"({', '.join(self.conductors)}); the estimates of nets add up their members' (a bound)"])
         return dataclasses.replace(self, conductors=tuple(names), capacitance=matrix, sigma=self.sigma @ projection,
-                                   labels=labels, reference=label, error_estimate=error,
+                                   labels=labels, reference=label, error_estimate=error, study=study,
                                    checks=dataclasses.replace(check_matrix(matrix, list(names)),
                                                               asymmetry=self.checks.asymmetry))
 
