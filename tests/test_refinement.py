@@ -8,10 +8,10 @@ import pytest
 from tricharge import shapes
 from tricharge.bem import convergence as cv
 from tricharge.bem.capacitance import solve_capacitance
-from tricharge.bem.panels import (edge_ids, make_panels, onto_disk_rim, onto_ellipsoid, onto_sphere,
+from tricharge.bem.panels import (make_panels, onto_disk_rim, onto_ellipsoid, onto_sphere,
                                   refine_uniformly, split_triangles)
 from tricharge.bem.system import problem_from_arrays
-from tricharge.mesh import edge_use
+from tricharge.mesh import edge_ids, edge_use, neighbour_pairs
 
 
 def test_uniform_refinement_keeps_area_orientation_and_closure():
@@ -202,3 +202,12 @@ def test_studies_run_with_plane_dielectric_and_floating_parts():
         np.testing.assert_array_equal(study.result.labels, np.where(conductor == 0, 0, -1))
     adaptive = cv.adaptive_study(problem, 0.02, max_panels=20_000)
     assert adaptive.stop in ("accuracy reached", "panel budget reached") and len(adaptive.panels) >= 2
+
+
+def test_neighbour_pairs_of_a_closed_and_an_open_mesh():
+    v, t = shapes.cube(1.0, 2)
+    a, b = neighbour_pairs(t)
+    assert len(a) == len(t) * 3 // 2 and np.all(np.bincount(np.concatenate([a, b])) == 3)
+    _, t2 = shapes.disk(1.0, 2)
+    a2, _ = neighbour_pairs(t2)
+    assert len(a2) == (3 * len(t2) - 12) // 2  # 12 rim edges have one triangle

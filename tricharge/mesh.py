@@ -138,6 +138,20 @@ def aspect_ratios(vertices, triangles) -> np.ndarray:
         return np.where(double_area > 0, longest2 / double_area * (np.sqrt(3.0) / 2.0), np.inf)
 
 
+def edge_ids(triangles) -> tuple[np.ndarray, np.ndarray]:
+    """Number the undirected edges of a triangle mesh.
+
+    Returns
+    -------
+    edges : (e, 2) int64, sorted vertex pairs
+    side : (m, 3) int64, the edge id of side k of each triangle (vertex k to vertex k+1)
+    """
+    t = np.asarray(triangles, dtype=np.int64)
+    pairs = np.sort(np.stack([t, np.roll(t, -1, axis=1)], axis=2).reshape(-1, 2), axis=1)
+    edges, inverse = np.unique(pairs, axis=0, return_inverse=True)
+    return edges, inverse.reshape(-1, 3)
+
+
 def edge_use(triangles) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Undirected edges and how triangles use them.
 
@@ -149,14 +163,21 @@ def edge_use(triangles) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         direction (their normals are inconsistent across it)
     """
     t = np.asarray(triangles, dtype=np.int64)
-    directed = np.stack([t, np.roll(t, -1, axis=1)], axis=2).reshape(-1, 2)
-    forward = directed[:, 0] < directed[:, 1]
-    undirected = np.sort(directed, axis=1)
-    edges, inverse, count = np.unique(undirected, axis=0, return_inverse=True, return_counts=True)
-    inverse = inverse.ravel()
-    n_forward = np.bincount(inverse, weights=forward, minlength=len(edges))
+    edges, side = edge_ids(t)
+    forward = (t < np.roll(t, -1, axis=1)).ravel()
+    count = np.bincount(side.ravel(), minlength=len(edges))
+    n_forward = np.bincount(side.ravel(), weights=forward, minlength=len(edges))
     same_direction = (count == 2) & (n_forward != 1)
     return edges, count, same_direction
+
+
+def neighbour_pairs(triangles) -> tuple[np.ndarray, np.ndarray]:
+    """(a, b), each (p,) int64: the two triangles of every edge used by exactly two."""
+    _, side = edge_ids(triangles)
+    flat = side.ravel()
+    order = np.argsort(flat, kind="stable")
+    pairs = order[np.bincount(flat)[flat[order]] == 2].reshape(-1, 2) // 3
+    return pairs[:, 0], pairs[:, 1]
 
 
 def signed_volume(vertices, triangles) -> float:

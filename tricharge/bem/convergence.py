@@ -253,14 +253,9 @@ def jump_indicator(panels, sigma: np.ndarray) -> np.ndarray:
     """(N,) per panel: largest jump of charge density to a neighbour sharing an edge,
     times the panel's area, as a fraction of the conductor column's total |charge|;
     the largest over the columns (dimensionless)."""
-    from .panels import edge_ids
+    from ..mesh import neighbour_pairs
 
-    _, side = edge_ids(panels.triangles)
-    flat = side.ravel()
-    order = np.argsort(flat, kind="stable")
-    owner = np.repeat(np.arange(len(panels)), 3)[order]
-    same = flat[order][1:] == flat[order][:-1]
-    a, b = owner[:-1][same], owner[1:][same]  # pairs of panels sharing an edge
+    a, b = neighbour_pairs(panels.triangles)
     total = np.abs(sigma * panels.areas[:, None]).sum(axis=0)
     jump = np.abs(sigma[a] - sigma[b]) / np.where(total > 0, total, 1.0)
     out = np.zeros_like(sigma)

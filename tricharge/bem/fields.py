@@ -195,17 +195,13 @@ SHARP_ANGLE = 30.0
 def edge_sharpness(panels: Panels) -> np.ndarray:
     """(N,) largest angle (degrees) between a panel's normal and its neighbours' across
     its edges; 180 on a free edge of an open sheet (a knife edge)."""
+    from ..mesh import edge_ids, neighbour_pairs
+
     t = panels.triangles
-    directed = np.sort(np.stack([t, np.roll(t, -1, axis=1)], axis=2).reshape(-1, 2), axis=1)
-    _, inverse, count = np.unique(directed, axis=0, return_inverse=True, return_counts=True)
-    inverse = inverse.ravel()
-    owner = np.repeat(np.arange(len(t)), 3)
-    order = np.argsort(inverse, kind="stable")
+    _, side = edge_ids(t)
     sharp = np.zeros(len(t))
-    free = count[inverse] == 1
-    sharp[owner[free]] = 180.0
-    pairs = order[count[inverse[order]] == 2].reshape(-1, 2)
-    a, b = owner[pairs[:, 0]], owner[pairs[:, 1]]
+    sharp[(np.bincount(side.ravel())[side] == 1).any(axis=1)] = 180.0  # a free edge
+    a, b = neighbour_pairs(t)
     cosine = np.clip(np.einsum("pd,pd->p", panels.normals[a], panels.normals[b]), -1.0, 1.0)
     angle = np.degrees(np.arccos(cosine))
     np.maximum.at(sharp, a, angle)

@@ -13,7 +13,7 @@ from functools import cached_property
 
 import numpy as np
 
-from ..mesh import validate_surface
+from ..mesh import edge_ids, validate_surface
 
 # Dunavant, "High degree efficient symmetrical Gaussian quadrature rules for the
 # triangle", Int. J. Numer. Meth. Eng. 21 (1985) 1129-1148, rules of degree 1, 2, 4, 5.
@@ -127,18 +127,6 @@ class Panels:
 def make_panels(vertices, triangles, *, source: str = "mesh") -> Panels:
     """Validate arrays (see :func:`tricharge.mesh.validate_surface`) and build :class:`Panels`."""
     return Panels(*validate_surface(vertices, triangles, source=source))
-
-
-def edge_ids(triangles) -> tuple[np.ndarray, np.ndarray]:
-    """Number the edges of a triangle mesh.
-
-    Returns edges (E, 2) sorted vertex pairs, and side (m, 3): the edge id of side k of
-    each triangle (vertex k to vertex k+1).
-    """
-    t = np.asarray(triangles, dtype=np.int64)
-    pairs = np.sort(np.stack([t, np.roll(t, -1, axis=1)], axis=2).reshape(-1, 2), axis=1)
-    edges, inverse = np.unique(pairs, axis=0, return_inverse=True)
-    return edges, inverse.reshape(-1, 3)
 
 
 def split_triangles(vertices, triangles, mask, *, conforming: bool = False,
