@@ -145,7 +145,7 @@ _tol_option = click.option("--tol", type=click.FloatRange(1e-12, 1e-2), default=
               help="Write the panels with their charge density and field per conductor at 1 V (.vtu).")
 @click.option("--levels", type=click.IntRange(1, 4), default=1, show_default=True,
               help="Solve on this many meshes, each with every panel split into four, and extrapolate: the "
-                   "matrix then reads value ± estimated error. Costs 1.2-2x a solve on the finest mesh (16x the "
+                   "matrix then reads value ± estimated error. Costs 1.1-2x a solve on the finest mesh (16x the "
                    "panels at 3 levels).")
 @click.option("--accuracy", metavar="PERCENT",
               help="Refine where the charge crowds until every entry of at least 1%% of its row has an "
