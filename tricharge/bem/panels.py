@@ -136,11 +136,12 @@ def split_triangles(vertices, triangles, mask, *, conforming: bool = False,
     With ``conforming=False`` neighbours that are not split keep their edges, so the mesh
     may get hanging nodes (piecewise-constant collocation does not need conforming
     panels). With ``conforming=True`` neighbours are bisected to match: every triangle
-    with a split side gets its longest side split too (repeated until nothing changes),
-    then is halved across its longest side and, where another side is split, halved again
-    there (longest-edge bisection, Rivara 1984, from memory). Every edge stays shared by
-    whole sides, closed surfaces stay closed, and repeated refinement keeps angles bounded
-    away from zero.
+    with a split side gets its longest side split too (repeated until nothing changes).
+    A triangle with all three sides split becomes four as above; one with fewer is halved
+    across its longest side and, where another side is split, halved again there
+    (longest-edge bisection, Rivara 1984, from memory). Every edge stays shared by whole
+    sides, closed surfaces stay closed, and repeated refinement keeps angles bounded away
+    from zero.
 
     ``project(midpoints (k, 3), ends (k, 2, 3)) -> (k, 3)`` moves the new vertices onto
     the exact surface the mesh approximates (see :func:`onto_sphere` and friends); the
