@@ -93,6 +93,9 @@ class Model:
     unit : the length unit the user works in (for display; data are in metres)
     source : where the model came from (file names), used in messages
     notes : what the reader did that a user may want to know (ignored cells, ...)
+    warnings : what the reader found suspicious but not wrong (a unit that looks wrong, ...);
+        the geometry checks add theirs in ``survey.warnings``
+    inputs : every file the model was read from (model file first, then meshes), as given
     check : run the geometry checks of :mod:`tricharge.survey` and raise MeshError on
         the first error (``False`` lets ``inspect`` show a broken model)
     problems : (set here) the errors those checks found
@@ -111,6 +114,8 @@ class Model:
     unit: str = "m"
     source: str = "<arrays>"
     notes: tuple[str, ...] = ()
+    warnings: tuple[str, ...] = ()
+    inputs: tuple[str, ...] = ()
     check: InitVar[bool] = True
     problems: tuple[str, ...] = field(init=False, default=())
 

@@ -73,6 +73,7 @@ class SurfaceMesh:
     aliases: dict[str, str]
     notes: tuple[str, ...]
     source: str
+    paths: tuple[str, ...] = ()
 
 
 # -- helpers shared by the readers -----------------------------------------------------
@@ -391,7 +392,7 @@ def read_surfaces(paths, *, unit: str = "m") -> SurfaceMesh:
     source = ", ".join(str(p) for p in paths)
     if len(raws) > 1:  # vertices shared between files
         points, triangles = _merged(points, triangles)
-    return SurfaceMesh(points, triangles, index, names, aliases, notes, source)
+    return SurfaceMesh(points, triangles, index, names, aliases, notes, source, tuple(str(p) for p in paths))
 
 
 def read_mesh(paths, *, unit: str = "m", check: bool = True) -> Model:
@@ -405,4 +406,4 @@ def read_mesh(paths, *, unit: str = "m", check: bool = True) -> Model:
     mesh = read_surfaces(paths, unit=unit)
     conductors = tuple(Conductor(name, (name,)) for name in mesh.surfaces)
     return Model(mesh.vertices, mesh.triangles, mesh.surface_index, mesh.surfaces, conductors,
-                 unit=unit, source=mesh.source, notes=mesh.notes, check=check)
+                 unit=unit, source=mesh.source, notes=mesh.notes, inputs=mesh.paths, check=check)

@@ -216,7 +216,7 @@ def load_model_file(path, *, unit: str | None = None, check: bool = True) -> Mod
             conductor_media.update(media_map)
     return Model(mesh.vertices, mesh.triangles, mesh.surface_index, mesh.surfaces, tuple(conductors),
                  tuple(interfaces), media, background, conductor_media, ground_z, file_unit,
-                 str(path), mesh.notes, check=check)
+                 str(path), mesh.notes, inputs=(str(path),) + mesh.paths, check=check)
 
 
 def load(path, *, unit: str | None = None, check: bool = True) -> Model:
