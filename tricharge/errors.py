@@ -26,3 +26,8 @@ class OptionError(TrichargeError, ValueError):
 
 class SolverError(TrichargeError, RuntimeError):
     """The linear system could not be solved (singular, or not converged)."""
+
+
+class MissingDependency(TrichargeError, ImportError):
+    """An optional package is needed for the requested feature; the message says how to
+    install it."""

@@ -14,7 +14,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..errors import SolverError
+from ..errors import OptionError, SolverError
 from .operators import make_operator
 from .panels import Panels
 from .preconditioners import LocalInverse, SystemPreconditioner
@@ -26,9 +26,17 @@ EPS0 = 8.8541878128e-12
 #: ``4 pi eps0``, F/m: converts geometric operator units to farads.
 FOUR_PI_EPS0 = 4.0 * np.pi * EPS0
 
-#: Tolerance of the sign and dominance checks, relative to the largest diagonal entry
-#: (discretisation noise on weak couplings; common practice, no source).
+#: Tolerance of the sign and dominance checks when the solve's accuracy is not given,
+#: relative to the largest diagonal entry (common practice, no source).
 SIGN_TOLERANCE = 1e-6
+
+#: Relative accuracy of one solve's matrix entries by method, apart from the mesh's own
+#: discretisation error (measured): the dense operator keeps capacitances within about
+#: 1e-6 of the all-closed-form matrix (tests/test_operators.py); the fast one within 1e-4
+#: of the dense one (tests/test_fast.py). A conductor shielded inside another's cavity,
+#: whose capacitance to the reference is exactly zero, came out at 3e-7 of its row on the
+#: dense path and -6e-5 on the fast path (8,640 panels; tests/test_capacitance.py).
+SOLVER_ACCURACY = {"dense": 1e-6, "fast": 1e-4}
 
 
 @dataclass(frozen=True)
@@ -39,6 +47,8 @@ class MatrixChecks:
         it is an indicator of discretisation error)
     positive_diagonal, nonpositive_offdiagonal, diagonally_dominant : bool
     problems : human-readable descriptions of failed checks
+    within_accuracy : entries of the wrong sign that are zero within the solve's accuracy
+        (a shielded conductor's capacitance to the reference, say), described
     """
 
     asymmetry: float
@@ -46,6 +56,7 @@ class MatrixChecks:
     nonpositive_offdiagonal: bool
     diagonally_dominant: bool
     problems: tuple[str, ...] = ()
+    within_accuracy: tuple[str, ...] = ()
 
     @property
     def passed(self) -> bool:
@@ -54,29 +65,55 @@ class MatrixChecks:
     def to_dict(self) -> dict:
         return {"asymmetry": self.asymmetry, "positive_diagonal": self.positive_diagonal,
                 "nonpositive_offdiagonal": self.nonpositive_offdiagonal,
-                "diagonally_dominant": self.diagonally_dominant, "problems": list(self.problems)}
+                "diagonally_dominant": self.diagonally_dominant, "problems": list(self.problems),
+                "within_accuracy": list(self.within_accuracy)}
 
 
-def check_matrix(raw: np.ndarray, names: list[str]) -> MatrixChecks:
-    """Check a raw (unsymmetrised) Maxwell matrix (K, K), farads."""
+def entry_tolerance(maxwell: np.ndarray, relative: float) -> np.ndarray:
+    """(K, K) farads: how far each Maxwell entry may be off for a relative accuracy
+    ``relative``, measured against ``sqrt(C_ll C_kk)`` so weak couplings get the
+    absolute accuracy of the strong entries they are computed beside."""
+    d = np.abs(np.diag(np.asarray(maxwell, dtype=float)))
+    return relative * np.sqrt(np.outer(d, d))
+
+
+def check_matrix(raw: np.ndarray, names: list[str], *, accuracy: float | None = None,
+                 tolerance: np.ndarray | None = None) -> MatrixChecks:
+    """Check a raw (unsymmetrised) Maxwell matrix (K, K), farads.
+
+    ``tolerance`` (K, K) farads says how far each entry may be off (a refinement
+    study's estimate); else ``accuracy`` (the method's relative accuracy, see
+    :data:`SOLVER_ACCURACY`) plus the matrix's own asymmetry gives it through
+    :func:`entry_tolerance`; with neither, :data:`SIGN_TOLERANCE` of the largest self
+    term. A capacitance to the reference (row sum) may be off by its row's tolerances
+    added up. Entries of the wrong sign within their tolerance pass, and are listed in
+    ``within_accuracy``.
+    """
     c = np.asarray(raw, dtype=float)
     scale = float(np.max(np.abs(np.diag(c)))) or 1.0
-    tol = SIGN_TOLERANCE * scale
     asymmetry = float(np.max(np.abs(c - c.T)) / scale)
     sym = 0.5 * (c + c.T)
-    problems = []
+    if tolerance is None:
+        tolerance = (entry_tolerance(sym, accuracy + asymmetry) if accuracy is not None
+                     else np.full(c.shape, SIGN_TOLERANCE * scale))
+    tolerance = np.asarray(tolerance, dtype=float)
+    problems, small = [], []
     diag_bad = [names[k] for k in range(len(c)) if sym[k, k] <= 0]
     if diag_bad:
         problems.append(f"non-positive self capacitance on {', '.join(diag_bad)}")
-    off = sym - np.diag(np.diag(sym))
-    pos = [(names[a], names[b]) for a, b in zip(*np.nonzero(np.triu(off > tol, 1)))]
+    upper = np.triu(np.ones(c.shape, dtype=bool), 1)
+    pos = [(names[a], names[b]) for a, b in zip(*np.nonzero(upper & (sym > tolerance)))]
     if pos:
         problems.append("positive coupling between " + "; ".join(f"{a} and {b}" for a, b in pos))
-    row_sum = sym.sum(axis=1)
-    weak = [names[k] for k in np.flatnonzero(row_sum < -tol)]
+    small += [f"{names[a]} - {names[b]}: coupling {-sym[a, b]:.3g} F is zero within the solve's accuracy "
+              f"(±{tolerance[a, b]:.2g} F)" for a, b in zip(*np.nonzero(upper & (sym > 0) & (sym <= tolerance)))]
+    row_sum, row_tolerance = sym.sum(axis=1), tolerance.sum(axis=1)
+    weak = [names[k] for k in np.flatnonzero(row_sum < -row_tolerance)]
     if weak:
         problems.append(f"negative capacitance to the reference (row sum) on {', '.join(weak)}")
-    return MatrixChecks(asymmetry, not diag_bad, not pos, not weak, tuple(problems))
+    small += [f"{names[k]} - reference: {row_sum[k]:.3g} F is zero within the solve's accuracy "
+              f"(±{row_tolerance[k]:.2g} F)" for k in np.flatnonzero((row_sum < 0) & (row_sum >= -row_tolerance))]
+    return MatrixChecks(asymmetry, not diag_bad, not pos, not weak, tuple(problems), tuple(small))
 
 
 def mutual_form(maxwell: np.ndarray) -> np.ndarray:
@@ -133,6 +170,7 @@ class Result:
     study : the study's levels, orders and status per entry (plain data), or None
     method : operator used ("dense" or "fast")
     converged, iterations, residual : from the linear solve
+    accuracy : relative accuracy of the method's matrix entries (:data:`SOLVER_ACCURACY`)
     """
 
     conductors: tuple[str, ...]
@@ -152,6 +190,21 @@ class Result:
     floating: tuple[str, ...] = ()
     error_estimate: np.ndarray | None = None
     study: dict | None = None
+    accuracy: float = SOLVER_ACCURACY["dense"]
+
+    @property
+    def tolerance(self) -> np.ndarray:
+        """(K, K) farads: how far each Maxwell entry may be off: the study's estimate,
+        else the method's accuracy plus the asymmetry the solve left (see
+        :func:`check_matrix`)."""
+        if self.error_estimate is not None:
+            return self.error_estimate
+        return entry_tolerance(self.capacitance, self.accuracy + self.checks.asymmetry)
+
+    @property
+    def mutual_tolerance(self) -> np.ndarray:
+        """(K, K) farads: :attr:`tolerance` for the mutual form (row sums on the diagonal)."""
+        return mutual_error(self.tolerance)
 
     @property
     def mutual(self) -> np.ndarray:
@@ -171,10 +224,12 @@ class Result:
         import dataclasses
 
         names, matrix, error = self.conductors, self.capacitance, self.error_estimate
+        tolerance = self.tolerance
         projection = np.eye(len(names))
         if nets:
             if error is not None:  # triangle inequality on the sums
                 error = merge_conductors(error, names, nets)[0]
+            tolerance = merge_conductors(tolerance, names, nets)[0]
             matrix, new_names = merge_conductors(matrix, names, nets)
             member_of = {m: net for net, members in nets.items() for m in members}
             projection = np.array([[1.0 if member_of.get(n, n) == new else 0.0 for new in new_names] for n in names])
@@ -186,13 +241,14 @@ class Result:
             label = reference
         elif reference is not None:
             if (reference == "ground plane") != (self.reference == "ground plane"):
-                raise ValueError(f"reference {reference!r} does not fit this model, whose reference is "
+                raise OptionError(f"reference {reference!r} does not fit this model, whose reference is "
                                  f"{self.reference}")
         if grounded:
             matrix, kept = ground_conductors(matrix, names, grounded)
             keep = [names.index(n) for n in kept]
             if error is not None:
                 error = error[np.ix_(keep, keep)]
+            tolerance = tolerance[np.ix_(keep, keep)]
             projection, names = projection[:, keep], kept
             if label == self.reference:
                 label = "ground (" + ", ".join(grounded) + ")"
@@ -206,7 +262,7 @@ class Result:
                 f"({', '.join(self.conductors)}); the estimates of nets add up their members' (a bound)"])
         return dataclasses.replace(self, conductors=tuple(names), capacitance=matrix, sigma=self.sigma @ projection,
                                    labels=labels, reference=label, error_estimate=error, study=study,
-                                   checks=dataclasses.replace(check_matrix(matrix, list(names)),
+                                   checks=dataclasses.replace(check_matrix(matrix, list(names), tolerance=tolerance),
                                                               asymmetry=self.checks.asymmetry))
 
     def __repr__(self) -> str:
@@ -314,9 +370,11 @@ def solve_capacitance(problem: Problem, *, method: str = "auto", tol: float = 1e
     free = sigma * np.where(problem.is_conductor_panel, problem.permittivity, 0.0)[:, None]
     raw = maxwell_from_charges(free, panels.areas, labels, len(driven))
     names = tuple(problem.names[k] for k in driven)
+    accuracy = SOLVER_ACCURACY[operator.method]
     return Result(
         conductors=names, capacitance=0.5 * (raw + raw.T), sigma=sigma, labels=labels,
-        panel_areas=panels.areas, n_panels=n, solve_time=t2 - t0, checks=check_matrix(raw, list(names)),
+        panel_areas=panels.areas, n_panels=n, solve_time=t2 - t0,
+        checks=check_matrix(raw, list(names), accuracy=accuracy), accuracy=accuracy,
         method=operator.method, converged=solution.converged, iterations=solution.iterations,
         residual=solution.residual, timings={"assembly": t1 - t0, "solve": t2 - t1},
         reference="ground plane" if problem.ground_z is not None else "infinity",
@@ -416,16 +474,48 @@ class _StoredSystem:
         return self.matrix @ x
 
 
+def resolve_method(problem: Problem, method: str) -> str:
+    """"dense" or "fast": ``method`` itself, or for "auto" the rule by panel count
+    (:data:`~tricharge.bem.operators.AUTO_DENSE_LIMIT` for conductors alone,
+    :data:`AUTO_DENSE_LIMIT_GENERAL` with dielectrics, a plane or floating parts)."""
+    from .operators import AUTO_DENSE_LIMIT
+
+    if method not in ("auto", "dense", "fast"):
+        raise OptionError(f"method must be auto, dense or fast, got {method!r}")
+    if method != "auto":
+        return method
+    limit = AUTO_DENSE_LIMIT if problem.is_simple else AUTO_DENSE_LIMIT_GENERAL
+    return "dense" if len(problem.panels) <= limit else "fast"
+
+
+#: Peak bytes per panel of a fast solve, measured with /usr/bin/time (maximum resident
+#: set): conductors alone 13 kB at 100k panels and 10 kB at 1M (bench/fast.py); with a
+#: plane, dielectrics or floating parts the near field reaches 8 panel sizes instead of 6.
+FAST_BYTES_PER_PANEL = {True: 14_000, False: 40_000}
+
+
+def memory_estimate(n_panels: int, method: str, *, simple: bool = True, columns: int = 1) -> int:
+    """Bytes a solve of ``n_panels`` panels needs at its peak, roughly.
+
+    Dense: the stored matrix, the copy LU factorises, and (with dielectrics or a plane)
+    the image block assembled beside it: 16 or 24 bytes per matrix entry. Fast: the
+    measured :data:`FAST_BYTES_PER_PANEL` plus GMRES's Krylov vectors (50 per column).
+    """
+    n = int(n_panels)
+    if method == "dense":
+        return (16 if simple else 24) * n * n + 20_000 * n
+    return FAST_BYTES_PER_PANEL[bool(simple)] * n + 8 * 51 * n * max(int(columns), 1)
+
+
 def _general_operator(problem: Problem, method: str, tol: float, report):
     """Stored or matrix-free operator of a problem with interfaces, a plane or floating conductors."""
-    if method == "auto":
-        method = "dense" if len(problem.panels) <= AUTO_DENSE_LIMIT_GENERAL else "fast"
+    method = resolve_method(problem, method)
     if method == "dense":
         return _StoredSystem(assemble_system(problem))
     if method == "fast":
         report("near field", 0, 1)
         return FastSystem(problem, tol=tol)
-    raise ValueError(f"method must be auto, dense or fast, got {method!r}")
+    raise OptionError(f"method must be auto, dense or fast, got {method!r}")
 
 
 # -- reductions of a Maxwell matrix (exact algebra) ------------------------------------
@@ -439,10 +529,10 @@ def ground_conductors(maxwell: np.ndarray, names, grounded) -> tuple[np.ndarray,
     names = tuple(names)
     missing = sorted(set(grounded) - set(names))
     if missing:
-        raise ValueError(f"no conductor named {', '.join(missing)}; the conductors are {', '.join(names)}")
+        raise OptionError(f"no conductor named {', '.join(missing)}; the conductors are {', '.join(names)}")
     keep = [k for k, n in enumerate(names) if n not in set(grounded)]
     if not keep:
-        raise ValueError("every conductor would be grounded; keep at least one")
+        raise OptionError("every conductor would be grounded; keep at least one")
     return maxwell[np.ix_(keep, keep)], tuple(names[k] for k in keep)
 
 
@@ -457,10 +547,12 @@ def merge_conductors(maxwell: np.ndarray, names, nets: dict) -> tuple[np.ndarray
     for net, members in nets.items():
         for m in members:
             if m not in names:
-                raise ValueError(f"net {net}: no conductor named {m}; the conductors are {', '.join(names)}")
+                raise OptionError(f"net {net}: no conductor named {m}; the conductors are {', '.join(names)}")
             if m in member_of:
-                raise ValueError(f"conductor {m} is in both net {member_of[m]} and net {net}")
+                raise OptionError(f"conductor {m} is in both net {member_of[m]} and net {net}")
             member_of[m] = net
+        if net in names and net not in members:
+            raise OptionError(f"net {net}: a conductor outside the net has this name; give the net another name")
     new_names = []
     for n in names:
         label = member_of.get(n, n)

@@ -26,6 +26,8 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
+from ..errors import OptionError
+
 #: Relative accuracy of one solve, as a fraction of sqrt(C_ii C_jj) (fast vs dense, 1e-4).
 FLOOR = 1e-4
 #: Observed orders outside this range mean the sequence is not in its asymptotic range.
@@ -230,7 +232,7 @@ def uniform_study(problem, levels: int = 3, *, project=None, method: str = "auto
     from .capacitance import solve_capacitance
 
     if levels < 2:
-        raise ValueError("a refinement study needs at least two levels")
+        raise OptionError(f"a refinement study needs at least two levels, got {levels}")
     results, chain, current, parent = [], [], problem, None
     for level in range(levels):
         if level:
@@ -292,7 +294,7 @@ def adaptive_study(problem, accuracy: float, *, max_panels: int = 200_000, proje
     from .capacitance import solve_capacitance
 
     if not 0 < accuracy < 1:
-        raise ValueError("accuracy must be a fraction between 0 and 1")
+        raise OptionError(f"accuracy must be a fraction between 0 and 1, got {accuracy!r}")
     results, chain, current, notes, parent = [], [], problem, [], None
     previous = extrapolation = None
     while True:
@@ -317,7 +319,8 @@ def adaptive_study(problem, accuracy: float, *, max_panels: int = 200_000, proje
         current = candidate
         chain.append(parent)
     if len(results) < 2:
-        raise ValueError(f"the first refinement would exceed the budget of {max_panels:,} panels; raise it")
+        raise OptionError(f"the first refinement ({len(candidate.panels):,} panels) would exceed the panel budget "
+                          f"of {max_panels:,}; raise the budget (--max-panels)")
     if extrapolation is None:
         sizes = np.array([r.n_panels for r in results], dtype=float) ** -0.5
         extrapolation = richardson(np.array([r.capacitance for r in results]), sizes)

@@ -11,14 +11,10 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..errors import TrichargeError
+from ..errors import MissingDependency
 
 #: Below this many source-target interactions the direct sum is faster than the FMM.
 DIRECT_LIMIT = 4e6
-
-
-class MissingDependency(TrichargeError, ImportError):
-    """An optional package is needed for the requested feature."""
 
 
 def _fmm3dpy():

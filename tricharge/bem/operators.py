@@ -18,6 +18,7 @@ import numpy as np
 from scipy.spatial.distance import cdist
 from scipy.sparse.linalg import LinearOperator
 
+from ..errors import OptionError
 from ..mesh import PairFinder, pairs_within
 from .integrals import point_rule_field, point_rule_potential, triangle_field
 from .panels import QUADRATURE_RULES, Panels
@@ -301,7 +302,7 @@ def make_operator(panels: Panels, method: str = "auto", *, tol: float = 1e-6, pr
         return DenseSingleLayer(panels)
     if method == "fast":
         return FastSingleLayer(panels, tol=tol, progress=progress)
-    raise ValueError(f"method must be auto, dense or fast, got {method!r}")
+    raise OptionError(f"method must be auto, dense or fast, got {method!r}")
 
 
 #: Panel count up to which "auto" picks the dense operator. Measured here (2 cores,
