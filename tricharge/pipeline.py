@@ -6,12 +6,13 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .bem.capacitance import Result, solve_capacitance, solve_voltages
+from .bem.capacitance import Result, memory_estimate, resolve_method, solve_capacitance, solve_voltages
 from .bem.fields import field_at, hot_spots, potential_at, surface_field
 from .bem.panels import make_panels
 from .bem.system import Problem
 from .errors import OptionError
 from .model import Model
+from .resources import check_memory
 
 
 def problem_of(model: Model) -> Problem:
@@ -56,9 +57,14 @@ def solve(model: Model, *, method: str = "auto", tol: float = 1e-6, progress=Non
     """
     from .bem import convergence
 
-    problem = problem_of(model)
     if accuracy is not None and levels > 1:
         raise OptionError("ask for either a uniform study (levels) or an adaptive one (accuracy), not both")
+    if not isinstance(levels, int) or not 1 <= levels <= 6:
+        raise OptionError(f"levels must be a whole number from 1 to 6, got {levels!r}")
+    finest = max_panels if accuracy is not None else model.n_panels * 4 ** (levels - 1)
+    check_solve_memory(model, method, finest, what="the finest level of the refinement study" if finest !=
+                       model.n_panels else None)
+    problem = problem_of(model)
     if accuracy is not None:
         if max_panels <= len(problem.panels):
             raise OptionError(f"{model.source}: the panel budget {max_panels:,} is not above the model's "
@@ -71,6 +77,63 @@ def solve(model: Model, *, method: str = "auto", tol: float = 1e-6, progress=Non
     return solve_capacitance(problem, method=method, tol=tol, progress=progress)
 
 
+def check_reductions(model: Model, nets: dict | None = None, grounded=(), reference: str | None = None) -> None:
+    """Check ``--merge``/``--ground``/``--reference`` names against the model before any
+    solve (OptionError naming the bad one): the same algebra as
+    :meth:`~tricharge.bem.capacitance.Result.reduced`, on a stand-in matrix."""
+    from .bem.capacitance import ground_conductors, merge_conductors
+
+    names = tuple(c.name for c in model.conductors if not c.floating)
+    matrix = np.eye(len(names))
+    if nets:
+        matrix, names = merge_conductors(matrix, names, nets)
+    grounded = list(grounded)
+    if reference not in (None, "infinity", "ground plane"):
+        grounded.append(reference)
+    elif reference is not None and (reference == "ground plane") != (model.ground_z is not None):
+        own = "ground plane" if model.ground_z is not None else "infinity"
+        raise OptionError(f"reference {reference!r} does not fit this model, whose reference is {own}")
+    if grounded:
+        ground_conductors(matrix, names, grounded)
+
+
+def is_simple(model: Model) -> bool:
+    """Conductors alone: no interfaces, no ground plane, nothing floating."""
+    return not model.interfaces and model.ground_z is None and not any(c.floating for c in model.conductors)
+
+
+def check_solve_memory(model: Model, method: str, n_panels: int | None = None, *, what: str | None = None) -> None:
+    """Refuse (OptionError, with advice) a solve of ``n_panels`` (default: the model's)
+    whose estimated memory (:func:`~tricharge.bem.capacitance.memory_estimate`) exceeds
+    what the machine has available. ``method`` may be "auto"."""
+    from .bem.capacitance import AUTO_DENSE_LIMIT_GENERAL
+    from .bem.operators import AUTO_DENSE_LIMIT
+
+    n = model.n_panels if n_panels is None else int(n_panels)
+    simple = is_simple(model)
+    if method not in ("auto", "dense", "fast"):
+        raise OptionError(f"method must be auto, dense or fast, got {method!r}")
+    chosen = method if method != "auto" else (
+        "dense" if n <= (AUTO_DENSE_LIMIT if simple else AUTO_DENSE_LIMIT_GENERAL) else "fast")
+    needed = memory_estimate(n, chosen, simple=simple, columns=len(model.conductors))
+    label = what or f"{model.source}"
+    advice = ("use --method fast (memory growing linearly with the panel count)" if chosen == "dense" else
+              "use a coarser mesh, fewer refinement levels or a lower --max-panels")
+    check_memory(needed, f"{label}: a {chosen} solve of {n:,} panels", advice)
+
+
+#: Bytes per sample point kept until the run ends: coordinates, potential and field,
+#: their CSV line and their JSON record (Python objects), measured roughly (our figure).
+BYTES_PER_SAMPLE = 2_000
+#: Points evaluated at a time, so near-field pair lists stay bounded (our choice).
+SAMPLE_CHUNK = 20_000
+
+
+def check_sample_memory(n_points: int, what: str) -> None:
+    """Refuse sampling requests too large for the machine (see :data:`BYTES_PER_SAMPLE`)."""
+    check_memory(n_points * BYTES_PER_SAMPLE, f"{what}: {n_points:,} sample points", "ask for fewer points")
+
+
 @dataclass(frozen=True, repr=False)
 class FieldResult:
     """Fields for applied voltages.
@@ -78,6 +141,7 @@ class FieldResult:
     conductors : names; potentials : (K,) V; free_charge : (K,) C
     surface : per-panel surface fields (:class:`~tricharge.bem.fields.SurfaceField`)
     parts : names of the parts hot spots refer to (conductors, then interfaces)
+    groups : (N,) index into ``parts`` of every panel
     spots : hot spots, ``spot.group`` indexing ``parts``
     margins : per medium with a withstand strength: (medium, E_max V/m, withstand V/m)
     gap : shortest distance between the two driven electrodes (m), when there are two
@@ -89,11 +153,13 @@ class FieldResult:
     free_charge: np.ndarray
     surface: object
     parts: tuple[str, ...]
+    groups: np.ndarray
     spots: list
     margins: list
     gap: float | None
     utilisation: float | None
     method: str
+    converged: bool
     iterations: int
     residual: float
     problem: Problem
@@ -101,11 +167,17 @@ class FieldResult:
 
     def sample(self, points) -> tuple[np.ndarray, np.ndarray]:
         """Potential (M,) V and field (M, 3) V/m at ``points`` (M, 3) metres, anywhere:
-        accurate within a panel size of the surface (closed-form near terms)."""
+        accurate within a panel size of the surface (closed-form near terms). Points are
+        evaluated :data:`SAMPLE_CHUNK` at a time, so memory does not grow with M beyond
+        the results."""
         points = np.atleast_2d(np.asarray(points, dtype=np.float64))
+        phi, field = np.empty(len(points)), np.empty((len(points), 3))
         kwargs = dict(images=self.problem.images)
-        return (potential_at(points, self.problem.panels, self.sigma, **kwargs),
-                field_at(points, self.problem.panels, self.sigma, **kwargs))
+        for s in range(0, len(points), SAMPLE_CHUNK):
+            chunk = points[s : s + SAMPLE_CHUNK]
+            phi[s : s + SAMPLE_CHUNK] = potential_at(chunk, self.problem.panels, self.sigma, **kwargs)
+            field[s : s + SAMPLE_CHUNK] = field_at(chunk, self.problem.panels, self.sigma, **kwargs)
+        return phi, field
 
     def __repr__(self) -> str:
         peak = max((s.field for s in self.spots), default=0.0)
@@ -140,22 +212,23 @@ def solve_field(model: Model, voltages: dict[str, float] | None = None, *, metho
     ``voltages`` override the model's ``volts`` per conductor name; ``withstand`` gives a
     withstand field strength (V/m) per medium name, for the margins.
     """
-    problem = problem_of(model)
     volts = applied_voltages(model, voltages)
+    check_solve_memory(model, method)
+    problem = problem_of(model)
     charge = np.array([c.net_charge for c in model.conductors])
     excitation = solve_voltages(problem, volts, charge, method=method, tol=tol, progress=progress)
     surface = surface_field(problem, excitation.sigma)
-    groups = _part_groups(model)
+    groups = part_index(model)
     parts = model.conductor_names + tuple(i.name for i in model.interfaces)
     spots = hot_spots(problem.panels, surface.magnitude, groups, top=top)
     margins = _margins(model, surface, withstand or {})
     gap, utilisation = _utilisation(model, volts, surface)
-    return FieldResult(model.conductor_names, excitation.potentials, excitation.free_charge, surface, parts, spots,
-                       margins, gap, utilisation, excitation.method, excitation.iterations, excitation.residual,
-                       problem, excitation.sigma)
+    return FieldResult(model.conductor_names, excitation.potentials, excitation.free_charge, surface, parts, groups,
+                       spots, margins, gap, utilisation, excitation.method, excitation.converged,
+                       excitation.iterations, excitation.residual, problem, excitation.sigma)
 
 
-def _part_groups(model: Model) -> np.ndarray:
+def part_index(model: Model) -> np.ndarray:
     """(m,) part index per triangle: conductors first, then interfaces."""
     groups = model.conductor_labels.copy()
     on_interface = model.interface_labels >= 0
@@ -251,7 +324,7 @@ def refine_peaks(result: FieldResult, model: Model, *, radius_panels: float = 4.
     charge = np.array([c.net_charge for c in model.conductors])
     sigma = solve_voltages(refined, result.potentials, charge, method=method, tol=tol).sigma
     magnitude = surface_field(refined, sigma).magnitude
-    groups = _part_groups(model)[parent]
+    groups = result.groups[parent]
     centroids = refined.panels.centroids
     out = []
     for spot in peaks:

@@ -5,6 +5,7 @@ from __future__ import annotations
 import math
 
 from .errors import OptionError
+from .names import printable
 
 #: Metres per unit. "um" is micrometres; "mil" is a thousandth of an inch.
 LENGTH_UNITS: dict[str, float] = {"m": 1.0, "cm": 1e-2, "mm": 1e-3, "um": 1e-6, "in": 0.0254, "mil": 2.54e-5}
@@ -64,13 +65,26 @@ def parse_quantity(value, unit: str, *, what: str = "value") -> float:
     if isinstance(value, bool):
         raise OptionError(f"{what}: expected a number of {unit} or a text like '12k{unit}', got {value!r}")
     if isinstance(value, (int, float)):
-        return float(value)
+        return _finite(float(value), value, unit, what)
     text = str(value).strip()
     match = re.fullmatch(r"([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*([afpnuµmkMG]?)" + re.escape(unit) + r"?",
                          text)
     if not match or (match.group(2) and not text.endswith(unit)):
-        raise OptionError(f"{what}: cannot read {value!r} as {unit}; write a number like 1500 or '1.5k{unit}'")
-    return float(match.group(1)) * _SI_PREFIX[match.group(2)]
+        raise OptionError(f"{what}: cannot read {printable(value)!r} as {unit}; write a number like 1500 or "
+                          f"'1.5k{unit}'")
+    return _finite(float(match.group(1)) * _SI_PREFIX[match.group(2)], value, unit, what)
+
+
+#: Largest magnitude accepted for a voltage, charge or field strength: far beyond any
+#: device (1e15 V, 1e15 C, 1e15 V/m), small enough that products stay finite.
+MAX_QUANTITY = 1e15
+
+
+def _finite(number: float, given, unit: str, what: str) -> float:
+    if not math.isfinite(number) or abs(number) > MAX_QUANTITY:
+        raise OptionError(f"{what}: {printable(given)!r} is not a usable number of {unit}; give a finite value "
+                          f"below {MAX_QUANTITY:g} {unit}")
+    return number
 
 
 _FIELD_UNITS = {"V/m": 1.0, "kV/m": 1e3, "V/mm": 1e3, "kV/cm": 1e5, "MV/m": 1e6, "kV/mm": 1e6, "V/um": 1e6}
@@ -85,11 +99,17 @@ def parse_field_strength(value, *, what: str = "field strength") -> float:
     import re
 
     if isinstance(value, (int, float)) and not isinstance(value, bool):
-        return float(value)
-    match = re.fullmatch(r"\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*([A-Za-z/]*)\s*", str(value))
-    if not match or (match.group(2) or "V/m") not in _FIELD_UNITS:
-        raise OptionError(f"{what}: cannot read {value!r}; write e.g. '3kV/mm' (units: {', '.join(_FIELD_UNITS)})")
-    return float(match.group(1)) * _FIELD_UNITS[match.group(2) or "V/m"]
+        number = float(value)
+    else:
+        match = re.fullmatch(r"\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*([A-Za-z/]*)\s*", str(value))
+        if not match or (match.group(2) or "V/m") not in _FIELD_UNITS:
+            raise OptionError(f"{what}: cannot read {printable(value)!r}; write e.g. '3kV/mm' (units: "
+                              f"{', '.join(_FIELD_UNITS)})")
+        number = float(match.group(1)) * _FIELD_UNITS[match.group(2) or "V/m"]
+    if not number > 0:
+        raise OptionError(f"{what}: {printable(value)!r} is not a withstand strength; give a positive field "
+                          "strength, e.g. '3kV/mm'")
+    return _finite(number, value, "V/m", what)
 
 
 def parse_fraction(value, *, what: str = "value") -> float:
@@ -105,6 +125,25 @@ def parse_fraction(value, *, what: str = "value") -> float:
     except ValueError:
         number = float("nan")
     if not 0.0 < number < 1.0:
-        raise OptionError(f"{what}: cannot read {value!r} as a relative accuracy; write a percentage like 0.5% "
-                          "or a fraction like 0.005")
+        raise OptionError(f"{what}: cannot read {printable(value)!r} as a relative accuracy; write a percentage "
+                          "like 0.5% or a fraction like 0.005")
     return number
+
+
+def parse_numbers(text: str, count: int, what: str) -> list[float]:
+    """``count`` finite numbers separated by commas, e.g. a point ``"1,2.5,-3"``.
+
+    >>> parse_numbers("1, 2.5,-3", 3, "--probe")
+    [1.0, 2.5, -3.0]
+    """
+    try:
+        values = [float(x) for x in str(text).split(",")]
+    except ValueError:
+        values = []
+    if len(values) != count:
+        raise OptionError(f"{what} {printable(text)!r}: expected {count} number{'s' if count > 1 else ''} "
+                          "separated by commas")
+    if not all(math.isfinite(v) and abs(v) <= MAX_QUANTITY for v in values):
+        raise OptionError(f"{what} {printable(text)!r}: every number must be finite (no nan or inf) and below "
+                          f"{MAX_QUANTITY:g}")
+    return values

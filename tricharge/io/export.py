@@ -1,70 +1,38 @@
-"""Write results to files. Every write is atomic: a temporary file in the target's
-folder is renamed over the target only when it is complete."""
+"""File formats of results: JSON, CSV, NumPy, VTK (surface .vtu and image .vti).
+
+Functions here turn results into text or write them to a path they are given; where the
+files go and how they are written safely is :mod:`.files`'s job. Names from users'
+files reach CSV cells only through :func:`tricharge.names.csv_cell`.
+"""
 
 from __future__ import annotations
 
+import csv
+import io
 import json
-import os
-import tempfile
-from pathlib import Path
 
 import numpy as np
 
-from ..errors import InputFileError
-
-
-def check_writable(path) -> Path:
-    """Fail early, before any work, when ``path`` cannot be written: missing folder or a directory."""
-    path = Path(path)
-    if path.is_dir():
-        raise InputFileError(f"{path}: is a folder; give a file name for the output")
-    if not path.parent.is_dir():
-        raise InputFileError(f"{path}: folder {path.parent} does not exist; create it or choose another output path")
-    if not os.access(path.parent, os.W_OK):
-        raise InputFileError(f"{path}: folder {path.parent} is not writable; choose another output path")
-    return path
-
-
-def write_atomic(path, text: str) -> None:
-    """Write ``text`` to ``path`` via a temporary file and a rename.
-
-    An interrupted run leaves the previous file (or none), never a truncated one.
-    """
-    path = check_writable(path)
-    folder = path.parent
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as handle:
-            handle.write(text)
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
-
-
-def write_bytes_atomic(path, data: bytes) -> None:
-    """Binary twin of :func:`write_atomic`."""
-    path = check_writable(path)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    try:
-        with os.fdopen(fd, "wb") as handle:
-            handle.write(data)
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
+from ..names import csv_cell
 
 
 def result_json(result, **provenance) -> str:
-    """JSON text of a result: the stable keys of DESIGN.md plus provenance."""
+    """JSON text of a capacitance result: its stable keys (conductors,
+    capacitance_matrix, panels, ...) and the provenance block of :mod:`.outputs`."""
     data = result.to_dict()
     data.update(provenance)
+    return json_text(data)
+
+
+def json_text(data: dict) -> str:
+    """Indented JSON; names keep every character (JSON escapes what it must)."""
     return json.dumps(data, indent=2) + "\n"
 
 
-def write_json(path, result, **provenance) -> None:
-    """Write :func:`result_json` to ``path`` atomically."""
-    write_atomic(path, result_json(result, **provenance))
+def _csv_text(rows) -> str:
+    buffer = io.StringIO()
+    csv.writer(buffer, lineterminator="\n").writerows(rows)
+    return buffer.getvalue()
 
 
 def samples_csv(kinds, points, potential, field, unit: str, scale: float) -> str:
@@ -74,20 +42,18 @@ def samples_csv(kinds, points, potential, field, unit: str, scale: float) -> str
     potential : (M,) V; field : (M, 3) V/m; coordinates are written in ``unit``
     (``scale`` metres per unit).
     """
-    import io
-
-    buffer = io.StringIO()
-    buffer.write(f"kind,x_{unit},y_{unit},z_{unit},potential_V,Ex_V_per_m,Ey_V_per_m,Ez_V_per_m,E_V_per_m\n")
+    header = ["kind", f"x_{unit}", f"y_{unit}", f"z_{unit}", "potential_V", "Ex_V_per_m", "Ey_V_per_m",
+              "Ez_V_per_m", "E_V_per_m"]
     magnitude = np.linalg.norm(field, axis=1)
-    for kind, p, phi, e, m in zip(kinds, points / scale, potential, field, magnitude):
-        buffer.write(f"{kind},{p[0]:.9g},{p[1]:.9g},{p[2]:.9g},{phi:.9g},{e[0]:.9g},{e[1]:.9g},{e[2]:.9g},{m:.9g}\n")
-    return buffer.getvalue()
+    rows = ([csv_cell(kind), *(f"{x:.9g}" for x in p), f"{phi:.9g}", *(f"{x:.9g}" for x in e), f"{m:.9g}"]
+            for kind, p, phi, e, m in zip(kinds, points / scale, potential, field, magnitude))
+    return _csv_text([header, *rows])
 
 
 def image_vti(origin, spacing, dims, arrays: dict) -> str:
     """VTK XML ImageData (.vti, ASCII) text for ParaView and pyvista.
 
-    origin, spacing : (3,) in the unit the user works in; dims : (3,) point counts;
+    origin, spacing : (3,) metres (as the surface .vtu files); dims : (3,) point counts;
     arrays : name -> (prod(dims),) or (prod(dims), 3) point data in VTK's x-fastest order.
     """
     extent = " ".join(f"0 {d - 1}" for d in dims)
@@ -109,40 +75,40 @@ def image_vti(origin, spacing, dims, arrays: dict) -> str:
 def matrix_csv(names, matrix, *, form: str) -> str:
     """CSV of a (K, K) matrix in farads with a header row of conductor names.
 
-    The first header cell says the form and unit, e.g. ``maxwell_F``.
+    The first header cell says the form and unit, e.g. ``maxwell_F``; names are quoted
+    where CSV needs it and never start a spreadsheet formula.
+
+    >>> print(matrix_csv(["a,b", "=1+1"], [[2e-12, -1e-12], [-1e-12, 3e-12]], form="maxwell"), end="")
+    maxwell_F,"a,b",'=1+1
+    "a,b",2e-12,-1e-12
+    '=1+1,-1e-12,3e-12
     """
-    lines = [",".join([f"{form}_F"] + list(names))]
-    for name, row in zip(names, np.asarray(matrix)):
-        lines.append(",".join([name] + [f"{x:.12g}" for x in row]))
-    return "\n".join(lines) + "\n"
+    cells = [csv_cell(n) for n in names]
+    rows = [[f"{form}_F", *cells]] + [[n, *(f"{x:.12g}" for x in row)] for n, row in zip(cells, np.asarray(matrix))]
+    return _csv_text(rows)
 
 
 def write_npz(path, **arrays) -> None:
-    """NumPy .npz, written atomically."""
-    path = check_writable(path)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".npz", dir=path.parent)
-    os.close(fd)
-    try:
-        np.savez(tmp, **arrays)
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
+    """NumPy .npz at ``path`` (which must end in .npz, or numpy adds it)."""
+    with open(path, "wb") as handle:
+        np.savez(handle, **arrays)
 
 
-def write_vtu(path, vertices, triangles, cell_data: dict) -> None:
-    """Panels with per-panel data as a VTK unstructured grid (.vtu) through meshio,
-    written atomically. ``cell_data``: name -> (m,) or (m, 3) arrays."""
+def write_vtu(path, vertices, triangles, cell_data: dict, field_data: dict | None = None) -> None:
+    """Panels with per-panel data as a VTK unstructured grid (.vtu) through meshio.
+    ``cell_data``: name -> (m,) or (m, 3) arrays; ``field_data``: name -> numbers about
+    the whole file (e.g. ``metres_per_unit``)."""
     import meshio
 
-    path = check_writable(path)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.stem}.", suffix=".vtu", dir=path.parent)
-    os.close(fd)
-    try:
-        mesh = meshio.Mesh(np.asarray(vertices), [("triangle", np.asarray(triangles))],
-                           cell_data={k: [np.asarray(v)] for k, v in cell_data.items()})
-        meshio.write(tmp, mesh, file_format="vtu")
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
+    mesh = meshio.Mesh(np.asarray(vertices), [("triangle", np.asarray(triangles))],
+                       cell_data={k: [np.asarray(v)] for k, v in cell_data.items()})
+    meshio.write(str(path), mesh, file_format="vtu")
+    if field_data:  # meshio's writer leaves FieldData out; VTK readers (meshio's too) take it
+        arrays = "".join(f'<DataArray type="Float64" Name="{name}" NumberOfTuples="{len(values)}" format="ascii">'
+                         + " ".join(f"{x:.17g}" for x in values) + "</DataArray>"
+                         for name, values in ((k, np.atleast_1d(np.asarray(v, dtype=float)))
+                                              for k, v in field_data.items()))
+        with open(path, encoding="utf-8") as handle:
+            text = handle.read()
+        with open(path, "w", encoding="utf-8") as handle:
+            handle.write(text.replace("<UnstructuredGrid>", f"<UnstructuredGrid>\n<FieldData>{arrays}</FieldData>", 1))

@@ -407,3 +407,10 @@ def read_mesh(paths, *, unit: str = "m", check: bool = True) -> Model:
     conductors = tuple(Conductor(name, (name,)) for name in mesh.surfaces)
     return Model(mesh.vertices, mesh.triangles, mesh.surface_index, mesh.surfaces, conductors,
                  unit=unit, source=mesh.source, notes=mesh.notes, inputs=mesh.paths, check=check)
+
+
+def read_vtk_xml(path):
+    """A VTK XML unstructured grid (.vtu) read with meshio after the same checks as a
+    mesh input (exists, not empty); returns the meshio mesh."""
+    path = check_input_file(Path(path))
+    return _read_with_meshio(path, "vtu", "VTU")

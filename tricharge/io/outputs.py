@@ -1,100 +1,162 @@
-"""Writing a solve's or a field solution's output files (SPICE, CSV, NPZ, VTU, samples).
+"""The output files of a solve or a field run, with one provenance block for all of them.
 
-Each function takes what to write and a ``say(text)`` callback for the one-line notes
-the command line prints; every file is written atomically.
+Each ``stage_*`` function stages its files into a transaction of :mod:`.files` (nothing
+appears until every output of the run is ready) and returns the notes the command line
+prints once they are written.
 """
 
 from __future__ import annotations
 
-import re
 from pathlib import Path
 
 import numpy as np
 
 from .. import __version__
 
+#: Version of the JSON layout. 1: the first releases (keys at the top level, no shared
+#: provenance); 2: solve and field JSON share :func:`provenance`, which records the media
+#: and units. Keys are only ever added, never renamed.
+FORMAT_VERSION = 2
 
-def provenance(path: Path, unit: str, result) -> dict:
-    """Where a result came from: tool version, input file and its SHA-256, unit, date."""
-    import datetime
+#: Units of the numbers in every JSON file (lengths in metres whatever the input's unit).
+JSON_UNITS = {"length": "m", "capacitance": "F", "charge": "C", "potential": "V", "field": "V/m",
+              "charge_density": "C/m^2"}
+
+
+def _sha256(path) -> str | None:
     import hashlib
 
-    digest = hashlib.sha256(path.read_bytes()).hexdigest() if path.is_file() else None
-    return {"tricharge_version": __version__, "input_file": str(path), "input_sha256": digest, "unit": unit,
+    try:
+        digest = hashlib.sha256()
+        with open(path, "rb") as handle:
+            for block in iter(lambda: handle.read(1 << 20), b""):
+                digest.update(block)
+        return digest.hexdigest()
+    except OSError:
+        return None
+
+
+def provenance(model, *, command: str) -> dict:
+    """Where a result came from: the JSON layout version, tool version and command, every
+    input file with its SHA-256, the user's length unit, the media and ground plane used,
+    the units of the JSON's numbers, and the date (UTC)."""
+    import datetime
+
+    inputs = [{"file": str(p), "sha256": _sha256(p)} for p in model.inputs]
+    first = inputs[0] if inputs else {"file": model.source, "sha256": None}
+    media = {"vacuum": 1.0}
+    media.update({m.name: m.permittivity for m in model.media})
+    return {"format_version": FORMAT_VERSION, "tricharge_version": __version__, "command": command,
+            "input_file": first["file"], "input_sha256": first["sha256"], "inputs": inputs,
+            "unit": model.unit, "json_units": JSON_UNITS, "background_medium": model.background,
+            "relative_permittivities": media, "ground_plane_z_m": model.ground_z,
             "created": datetime.datetime.now(datetime.timezone.utc).isoformat(timespec="seconds")}
 
 
-def write_matrix_outputs(result, full, model, outputs: dict, form: str, drop_below: float, origin: dict,
-                         say) -> None:
-    """SPICE, CSV, NPZ and VTU files of a solve; each written atomically."""
-    from .export import matrix_csv, write_atomic, write_npz, write_vtu
+def spice_circuit(result, origin: dict, drop_below: float):
+    """The :class:`~tricharge.io.spice.Subcircuit` of a result, with the provenance header."""
+    from .spice import subcircuit
 
-    if "spice" in outputs:
-        from .spice import subcircuit
+    header = (f"tricharge {origin['tricharge_version']}: capacitance subcircuit",
+              f"input {origin['input_file']} sha256 {origin['input_sha256']}",
+              f"unit {origin['unit']}, method {result.method}, {result.n_panels} panels, "
+              f"created {origin['created']}")
+    if result.study is not None:
+        worst = float(np.max(result.error_estimate / np.abs(result.capacitance).max()))
+        header += (f"values extrapolated by a {result.study['kind']} refinement study to "
+                   f"{result.study['panels_per_level'][-1]} panels; largest error estimate "
+                   f"{worst:.2%} of the largest entry",)
+    return subcircuit(result.mutual, result.conductors, name=Path(origin["input_file"]).stem or "tricharge",
+                      reference=result.reference, drop_below=drop_below, header=header,
+                      tolerance=result.mutual_tolerance)
 
-        path = outputs["spice"]
-        header = (f"tricharge {origin['tricharge_version']}: capacitance subcircuit",
-                  f"input {origin['input_file']} sha256 {origin['input_sha256']}",
-                  f"unit {origin['unit']}, method {result.method}, {result.n_panels} panels, "
-                  f"created {origin['created']}")
-        if result.study is not None:
-            worst = float(np.max(result.error_estimate / np.abs(result.capacitance).max()))
-            header += (f"values extrapolated by a {result.study['kind']} refinement study to "
-                       f"{result.study['panels_per_level'][-1]} panels; largest error estimate "
-                       f"{worst:.2%} of the largest entry",)
-        name = re.sub(r"[^A-Za-z0-9_]", "_", Path(origin["input_file"]).stem) or "tricharge"
-        circuit = subcircuit(result.mutual, result.conductors, name=name, reference=result.reference,
-                             drop_below=drop_below, header=header)
-        write_atomic(path, circuit.text)
-        say(f"wrote {path} (.subckt {name})")
-        for note in circuit.renamed:
-            say(f"  renamed for SPICE: {note}")
+
+def stage_solve(stage, targets: dict, result, full, model, origin: dict, *, form: str = "maxwell",
+                drop_below: float = 0.0) -> list[str]:
+    """Stage the files of a solve: ``targets`` maps json, spice, csv, npz, vtu to a
+    :class:`~tricharge.io.files.Target` or None. ``result`` is the (possibly reduced)
+    result the matrix files hold, ``full`` the unreduced one the VTU's per-panel data
+    come from. Returns notes for the terminal."""
+    from ..bem.capacitance import EPS0
+    from .export import matrix_csv, result_json, write_npz, write_vtu
+
+    notes = []
+    stage.text(targets.get("json"), result_json(result, **origin))
+    if targets.get("spice") is not None:
+        circuit = spice_circuit(result, origin, drop_below)
+        stage.text(targets["spice"], circuit.text)
+        name = circuit.text.split(".subckt ", 1)[1].split(" ", 1)[0]
+        notes.append(f"{targets['spice'].shown}: .subckt {name}")
+        notes += [f"  renamed for SPICE: {note}" for note in circuit.renamed]
+        notes += [f"  {note}" for note in circuit.zeroed]
         if circuit.dropped:
-            say(f"  left out {circuit.dropped} couplings below {drop_below:g} of their row total, "
-                  f"{circuit.dropped_total:.4g} F in all")
-    if "csv" in outputs:
-        matrix = result.capacitance if form == "maxwell" else result.mutual
-        write_atomic(outputs["csv"], matrix_csv(result.conductors, matrix, form=form))
-        say(f"wrote {outputs['csv']} ({form} form, farads)")
-    if "npz" in outputs:
-        write_npz(outputs["npz"], conductors=np.array(result.conductors), maxwell=result.capacitance,
-                  mutual=result.mutual, reference=np.array(result.reference))
-        say(f"wrote {outputs['npz']}")
-    if "vtu" in outputs:
-        from ..bem.capacitance import EPS0
-
+            notes.append(f"  left out {circuit.dropped} couplings below {drop_below:g} of their row total, "
+                         f"{circuit.dropped_total:.4g} F in all")
+    matrix = result.capacitance if form == "maxwell" else result.mutual
+    stage.text(targets.get("csv"), matrix_csv(result.conductors, matrix, form=form))
+    stage.file(targets.get("npz"), lambda path: write_npz(
+        path, conductors=np.array(result.conductors), maxwell=result.capacitance, mutual=result.mutual,
+        reference=np.array(result.reference)))
+    if targets.get("vtu") is not None:
         data = {"conductor": full.labels, "area_m2": full.panel_areas}
         for k, name in enumerate(full.conductors):
             data[f"sigma_C_per_m2_{name}_at_1V"] = full.sigma[:, k]
             data[f"E_normal_V_per_m_{name}_at_1V"] = np.where(full.labels >= 0, full.sigma[:, k] / EPS0, np.nan)
-        write_vtu(outputs["vtu"], model.vertices, model.triangles, data)
-        say(f"wrote {outputs['vtu']}")
+        stage.file(targets["vtu"], lambda path: write_vtu(path, model.vertices, model.triangles, data))
+    return notes
 
 
-def write_samples(result, model, requests, samples_path, vtk_path, say) -> list[dict]:
-    """Evaluate the requested samples, write the CSV and VTK files asked for, and return
-    the samples as records for the JSON output (coordinates in metres)."""
-    from .export import image_vti, samples_csv, write_atomic
+#: Per-panel arrays of a field solution's VTU (read back by ``tricharge view``).
+FIELD_VTU_ARRAYS = ("part", "area_m2", "sigma_total_C_per_m2", "sigma_free_C_per_m2", "E_normal_outside_V_per_m",
+                    "E_normal_inside_V_per_m", "E_tangential_V_per_m", "E_magnitude_V_per_m")
+
+
+def field_vtu_data(result) -> dict:
+    """name -> (N,) per-panel array of a :class:`~tricharge.pipeline.FieldResult`."""
+    surface = result.surface
+    values = (result.groups, result.problem.panels.areas, result.sigma, surface.free_charge_density,
+              surface.outside, surface.inside, surface.tangential, surface.magnitude)
+    return dict(zip(FIELD_VTU_ARRAYS, values))
+
+
+def field_json(result, samples: list[dict], rechecked, origin: dict) -> str:
+    """JSON text of a field solution: potentials, charges, hot spots, margins, samples."""
+    from .export import json_text
+
+    data = {"conductors": list(result.conductors), "potentials_V": result.potentials.tolist(),
+            "free_charge_C": result.free_charge.tolist(), "method": result.method,
+            "converged": result.converged, "iterations": result.iterations, "residual": result.residual,
+            "hot_spots": [{"part": result.parts[s.group], "rank": s.rank, "field_V_per_m": s.field,
+                           "location_m": list(s.location), "panel_size_m": s.panel_size, "sharp": s.sharp,
+                           "sharp_angle_deg": s.sharp_angle} for s in result.spots],
+            "utilisation": result.utilisation, "gap_m": result.gap,
+            "margins": [{"medium": m, "peak_V_per_m": e, "withstand_V_per_m": w} for m, e, w in result.margins],
+            "peak_refinement": [{"part": p, "before_V_per_m": a, "after_V_per_m": b} for p, a, b in rechecked],
+            "samples": samples}
+    data.update(origin)
+    return json_text(data)
+
+
+def stage_samples(stage, targets: dict, model, requests, values) -> list[dict]:
+    """Stage the samples' CSV (``targets['samples']``) and the section's VTK image
+    (``targets['vtk']``); ``requests`` as from the command line ([(kind, points (M, 3) m,
+    image geometry or None)]), ``values`` the matching [(potential (M,) V, field (M, 3)
+    V/m)]. Returns the samples as records for the JSON (coordinates in metres)."""
     from ..units import metres_per
+    from .export import image_vti, samples_csv
 
     scale = metres_per(model.unit)
     kinds, points, potentials, fields = [], [], [], []
-    for kind, pts, image in requests:
-        phi, e = result.sample(pts)
+    for (kind, pts, image), (phi, e) in zip(requests, values):
         kinds += [kind] * len(pts)
         points.append(pts)
         potentials.append(phi)
         fields.append(e)
-        if image is not None and vtk_path is not None:
-            origin, spacing, dims = image
-            spacing = np.where(dims > 1, spacing / scale, 1.0)
-            write_atomic(vtk_path, image_vti(origin / scale, spacing, dims,
-                                             {"potential_V": phi, "E_V_per_m": e,
-                                              "E_magnitude_V_per_m": np.linalg.norm(e, axis=1)}))
-            say(f"wrote {vtk_path}")
+        if image is not None and targets.get("vtk") is not None:
+            origin, spacing, dims = image  # metres, like the surface .vtu, so the two overlay in a viewer
+            stage.text(targets["vtk"], image_vti(origin, spacing, dims, {
+                "potential_V": phi, "E_V_per_m": e, "E_magnitude_V_per_m": np.linalg.norm(e, axis=1)}))
     points, potentials, fields = np.vstack(points), np.concatenate(potentials), np.vstack(fields)
-    if samples_path is not None:
-        write_atomic(samples_path, samples_csv(kinds, points, potentials, fields, model.unit, scale))
-        say(f"wrote {samples_path}")
+    stage.text(targets.get("samples"), samples_csv(kinds, points, potentials, fields, model.unit, scale))
     return [{"kind": k, "point_m": p.tolist(), "potential_V": float(v), "field_V_per_m": e.tolist()}
             for k, p, v, e in zip(kinds, points, potentials, fields)]

@@ -1,9 +1,15 @@
-"""Plain-text tables of results for the terminal."""
+"""Plain-text tables of results for the terminal.
+
+Every name that came from a user's file goes through :func:`tricharge.names.printable`
+before it is placed in a line, so control characters and escape sequences are shown,
+never sent to the terminal.
+"""
 
 from __future__ import annotations
 
 import numpy as np
 
+from ..names import printable
 from ..units import format_eng, prefix_for
 
 
@@ -17,6 +23,7 @@ def matrix_table(names, matrix, unit: str = "F", digits: int = 5, errors=None) -
     b   -1.0000   3.0000
     (values in pF)
     """
+    names = [printable(n) for n in names]
     m = np.asarray(matrix, dtype=float)
     scale, symbol = prefix_for(np.max(np.abs(m)) if m.size else 0.0)
     if np.max(np.abs(m)) / scale >= 1000:  # keep at most three integer digits
@@ -38,9 +45,10 @@ def matrix_table(names, matrix, unit: str = "F", digits: int = 5, errors=None) -
 def mutual_list(names, mutual, reference: str = "infinity", errors=None) -> str:
     """One line per capacitor of the mutual (SPICE) form: couplings, then to the
     reference; with ``errors`` (mutual form of the estimate) each gets ``± estimate``."""
+    names, reference = [printable(n) for n in names], printable(reference)
     m = np.asarray(mutual, dtype=float)
     k = len(names)
-    width = max(len(n) for n in names) * 2 + 5
+    width = max(len(n) for n in names) + max(len(n) for n in [*names, reference]) + 3
 
     def line(a, b, other):
         text = f"  {(names[a] + ' - ' + other).ljust(width)} {format_eng(m[a, b], 'F')}"
@@ -62,7 +70,8 @@ def checks_text(checks) -> str:
         f"  couplings <= 0  {mark(checks.nonpositive_offdiagonal)}",
         f"  row sums >= 0   {mark(checks.diagonally_dominant)}",
     ]
-    lines += [f"  problem: {p}" for p in checks.problems]
+    lines += [f"  problem: {printable(p)}" for p in checks.problems]
+    lines += [f"  note: {printable(p)}" for p in checks.within_accuracy]
     return "\n".join(lines)
 
 
@@ -74,17 +83,17 @@ def plural(count: int, noun: str) -> str:
 def result_report(result, *, source: str, unit: str, version: str) -> str:
     """The full text the ``solve`` command prints."""
     names = list(result.conductors)
-    floating = f"; floating, at zero net charge: {', '.join(result.floating)}" if result.floating else ""
+    floating = f"; floating, at zero net charge: {printable(', '.join(result.floating))}" if result.floating else ""
     how = (f"fast solve ({result.iterations} GMRES iterations, residual {result.residual:.1e})"
            if result.method == "fast" else "dense solve")
     if result.study is not None:
         levels = result.study["panels_per_level"]
         how = (f"{result.study['kind']} refinement study to {levels[-1]:,} panels in {len(levels)} levels, "
                f"{how} on the finest,")
-    head = (f"tricharge {version}: {source} (unit {unit}), {plural(len(names), 'conductor')}, "
+    head = (f"tricharge {version}: {printable(source)} (unit {unit}), {plural(len(names), 'conductor')}, "
             f"{plural(result.n_panels, 'panel')}, {how} in {result.solve_time:.2f} s{floating}")
     errors = result.error_estimate
-    reference = "ground" if result.reference == "ground plane" else result.reference
+    reference = result.reference
     if errors is None:
         mutual = mutual_list(names, result.mutual, reference)
         closing = ("Discretisation error not estimated (single solve): add --levels 3 or --accuracy 0.5% for "
@@ -126,7 +135,7 @@ def study_report(study: dict) -> str:
     if TWO_LEVELS in status:
         lines.append("  Two levels show no convergence order: each entry is the finer value with 3x its last "
                      "change. Three levels give an extrapolated value and a tighter estimate.")
-    lines += [f"  {note}" for note in study["notes"]]
+    lines += [f"  {printable(note)}" for note in study["notes"]]
     lines.append("  A to-reference capacitor's estimate is the sum of its row's estimates (a bound).")
     lines.append(f"  Method: {ESTIMATE_METHOD}. The estimate is for the mesh's geometry: it says nothing about "
                  "how well the mesh follows the real part.")
@@ -149,25 +158,27 @@ def survey_report(model, *, version: str) -> str:
     counts = [plural(len(model.conductors), "conductor")]
     if model.interfaces:
         counts.append(plural(len(model.interfaces), "interface"))
-    head = f"tricharge {version}: {model.source} (unit {u}): {', '.join(counts)}, {plural(model.n_panels, 'panel')}"
+    head = (f"tricharge {version}: {printable(model.source)} (unit {u}): {', '.join(counts)}, "
+            f"{plural(model.n_panels, 'panel')}")
     lines = [head]
     ground = f"z = {model.ground_z / scale:g} {u}" if model.ground_z is not None else "none"
-    media = ", ".join(f"{m.name} {m.permittivity:g}" for m in model.media) or "vacuum 1"
-    lines.append(f"ground plane: {ground}; background medium: {model.background}; "
+    media = ", ".join(f"{printable(m.name)} {m.permittivity:g}" for m in model.media) or "vacuum 1"
+    lines.append(f"ground plane: {ground}; background medium: {printable(model.background)}; "
                  f"relative permittivities: {media}")
     header = ["name", "surfaces", "condition" if model.interfaces == () else "condition / sides", "panels",
               f"area {u}2", f"x {u}", f"y {u}", f"z {u}", f"panel size {u}", "worst aspect", "surface"]
     rows = [header]
     for p in survey.parts:
         box = [f"{lo / scale:.4g}..{hi / scale:.4g}" for lo, hi in zip(p.bbox_min, p.bbox_max)]
-        rows.append([f"{p.name}" + (" (interface)" if p.kind == "interface" else ""), ", ".join(p.surfaces),
-                     p.detail, f"{p.panels:,}", f"{p.area / scale**2:.4g}", *box,
+        rows.append([printable(p.name) + (" (interface)" if p.kind == "interface" else ""),
+                     printable(", ".join(p.surfaces)), printable(p.detail), f"{p.panels:,}", f"{p.area / scale**2:.4g}", *box,
                      f"{p.smallest / scale:.3g}..{p.largest / scale:.3g}", f"{p.worst_aspect:.3g}",
                      "closed" if p.closed else "open (thin sheet)" if p.kind == "conductor" else "open"])
     lines += [""] + _table(rows, right={3, 4, 9})
-    for title, items in (("notes", model.notes), ("warnings", survey.warnings), ("errors", model.problems)):
+    for title, items in (("notes", model.notes), ("warnings", model.warnings + survey.warnings),
+                         ("errors", model.problems)):
         if items:
-            lines += ["", f"{title}:"] + [f"  - {item}" for item in items]
+            lines += ["", f"{title}:"] + [f"  - {printable(item)}" for item in items]
     if not model.problems:
         lines += ["", "no errors: the model can be solved"]
     return "\n".join(lines)
@@ -191,18 +202,19 @@ def field_report(result, model, *, source: str, version: str) -> str:
     from ..units import format_eng, metres_per
 
     scale, unit = metres_per(model.unit), model.unit
-    lines = [f"tricharge {version}: {source} (unit {unit}), {plural(len(result.conductors), 'conductor')}, "
+    lines = [f"tricharge {version}: {printable(source)} (unit {unit}), {plural(len(result.conductors), 'conductor')}, "
              f"{plural(model.n_panels, 'panel')}, {result.method} solve"]
     rows = [["conductor", "potential", "free charge"]]
     for name, v, q, c in zip(result.conductors, result.potentials, result.free_charge, model.conductors):
-        rows.append([name, format_eng(v, "V", keep_zeros=False) + (" (floating)" if c.floating else ""),
+        rows.append([printable(name), format_eng(v, "V", keep_zeros=False) + (" (floating)" if c.floating else ""),
                      format_eng(q, "C")])
     lines += [""] + _table(rows, right={1, 2})
     rows = [["part", "#", "|E|", "where (" + unit + ")", "panel " + unit, "feature"]]
     for s in result.spots:
         where = ", ".join(f"{x / scale:.4g}" for x in s.location)
         feature = f"sharp ({s.sharp_angle:.0f} deg)" if s.sharp else ""
-        rows.append([result.parts[s.group], str(s.rank), _kv_per_mm(s.field), where, f"{s.panel_size / scale:.3g}",
+        rows.append([printable(result.parts[s.group]), str(s.rank), _kv_per_mm(s.field), where,
+                     f"{s.panel_size / scale:.3g}",
                      feature])
     lines += ["", "Highest surface fields (|E| on the surface, the larger side at interfaces):"]
     lines += _table(rows, right={1, 2, 4})
@@ -218,7 +230,7 @@ def field_report(result, model, *, source: str, version: str) -> str:
         lines += ["", "Margins against the withstand strengths given:"]
         for medium, e_max, strength in result.margins:
             verdict = "exceeded" if e_max >= strength else f"margin {strength / e_max:.2f}x"
-            lines.append(f"  {medium}: peak {_kv_per_mm(e_max)} against {_kv_per_mm(strength)} ({verdict})")
+            lines.append(f"  {printable(medium)}: peak {_kv_per_mm(e_max)} against {_kv_per_mm(strength)} ({verdict})")
     lines += ["", CAUTIONS]
     return "\n".join(lines)
 
@@ -231,5 +243,5 @@ def refinement_report(rechecked) -> str:
         verdict = ("grows with the mesh: a sharp edge or corner, or a curve the mesh does not resolve; "
                    "refine there (or model the radius) before using the value" if change > 0.1
                    else "settled to within 10 %")
-        lines.append(f"  {part}: {_kv_per_mm(before)} -> {_kv_per_mm(after)} ({change:+.1%}), {verdict}")
+        lines.append(f"  {printable(part)}: {_kv_per_mm(before)} -> {_kv_per_mm(after)} ({change:+.1%}), {verdict}")
     return "\n".join(lines)

@@ -35,3 +35,26 @@ def field_picture(model, field, *, quantity: str = "field", log: bool = False, t
 
     title = f"{Path(model.source).name}: {'surface field' if quantity == 'field' else 'free surface charge'}"
     return Picture(vertices, triangles, values, title, label, log, labels, markers, ghosts), spots
+
+
+def saved_picture(saved, *, quantity: str = "field", log: bool = False):
+    """A :class:`~tricharge.viz.render.Picture` of a field solution read back from a file
+    (:class:`~tricharge.io.saved.SavedField`), in the length unit it was made in."""
+    import numpy as np
+
+    from ..errors import InputFileError
+    from ..names import printable
+    from ..units import metres_per
+    from .render import Picture
+
+    if quantity == "field":
+        values, label = saved.arrays["E_magnitude_V_per_m"] / 1e6, "E (kV/mm)"
+    else:
+        values, label = saved.arrays["sigma_free_C_per_m2"] * 1e6, "charge (uC/m2)"
+    if not np.isfinite(values).any():
+        raise InputFileError(f"{printable(saved.source)}: the {quantity} values are all missing (NaN); nothing to "
+                             "draw, save the solution again with field --vtu")
+    from pathlib import Path
+
+    return Picture(saved.vertices / metres_per(saved.unit), saved.triangles, values,
+                   f"{Path(saved.source).name} ({saved.unit}): {label}", label, log)

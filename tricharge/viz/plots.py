@@ -6,15 +6,16 @@ import io
 
 import numpy as np
 
-from ..errors import TrichargeError
+from ..names import chart_label
 from ..units import prefix_for
 
 
 def _pyplot():
-    try:
-        import matplotlib
-    except ImportError:
-        raise TrichargeError('charts need matplotlib: pip install "tricharge[viz]"') from None
+    from ..extras import require
+
+    require("viz", "charts")
+    import matplotlib
+
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
@@ -36,13 +37,14 @@ def matrix_heatmap(names, mutual, *, reference: str = "infinity") -> bytes:
     size = 1.2 + 0.7 * len(names)
     figure, axes = plt.subplots(figsize=(size + 1.5, size))
     image = axes.imshow(m / scale, cmap="viridis")
-    axes.set_xticks(range(len(names)), labels=names, rotation=45, ha="right")
-    axes.set_yticks(range(len(names)), labels=names)
+    labels = [chart_label(n) for n in names]
+    axes.set_xticks(range(len(names)), labels=labels, rotation=45, ha="right")
+    axes.set_yticks(range(len(names)), labels=labels)
     for (a, b), value in np.ndenumerate(m / scale):
         colour = "white" if value < 0.6 * (m / scale).max() else "black"
         axes.text(b, a, f"{value:.4g}", ha="center", va="center", color=colour, fontsize=9)
     figure.colorbar(image, ax=axes, label=f"capacitance ({symbol}F)")
-    axes.set_title(f"Mutual capacitances; diagonal: to {reference}")
+    axes.set_title(f"Mutual capacitances; diagonal: to {chart_label(reference)}")
     data = _png(figure)
     plt.close(figure)
     return data
@@ -55,7 +57,7 @@ def line_profile(distance, magnitude, *, unit: str, title: str) -> bytes:
     axes.plot(np.asarray(distance), np.asarray(magnitude) / 1e6)
     axes.set_xlabel(f"distance along the line ({unit})")
     axes.set_ylabel("field magnitude (kV/mm)")
-    axes.set_title(title)
+    axes.set_title(chart_label(title, 100))
     axes.grid(True, alpha=0.3)
     data = _png(figure)
     plt.close(figure)
@@ -72,7 +74,7 @@ def convergence_chart(names, study: dict, value, error) -> bytes:
     figure, axes = plt.subplots(figsize=(6.5, 4))
     for k, name in enumerate(names[:8]):
         c, e = value[k, k], error[k, k]
-        line, = axes.plot(panels, (levels[:, k, k] / c - 1) * 100, "o-", label=name)
+        line, = axes.plot(panels, (levels[:, k, k] / c - 1) * 100, "o-", label=chart_label(name))
         axes.axhspan(-e / c * 100, e / c * 100, color=line.get_color(), alpha=0.12)
     axes.axhline(0.0, color="black", linewidth=0.8)
     axes.set_xscale("log")

@@ -12,6 +12,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..errors import TrichargeError
+from ..names import chart_label
 
 #: Camera directions (from the scene towards the camera) of the standard views.
 VIEWS = {"iso": (1.0, -1.0, 0.8), "top": (0.0, 0.0, 1.0), "front": (0.0, -1.0, 0.0), "side": (1.0, 0.0, 0.0)}
@@ -22,10 +23,11 @@ MARKER_RGB = (255, 0, 255)
 
 def _pyvista():
     os.environ.setdefault("VTK_DEFAULT_OPENGL_WINDOW", "vtkEGLRenderWindow")  # no X display needed
-    try:
-        import pyvista
-    except ImportError:
-        raise TrichargeError('pictures need pyvista: pip install "tricharge[viz]"') from None
+    from ..extras import require
+
+    require("viz", "pictures")
+    import pyvista
+
     return pyvista
 
 
@@ -71,15 +73,15 @@ def _plotter(picture: Picture, view: str, size, off_screen: bool = True):
         plotter.add_mesh(pv.PolyData(np.asarray(ghost_vertices, float), ghost_faces), color="lightblue",
                          opacity=0.15)
     if picture.labels:
-        plotter.add_point_labels(np.array([p for _, p in picture.labels]), [t for t, _ in picture.labels],
+        plotter.add_point_labels(np.array([p for _, p in picture.labels]), [chart_label(t) for t, _ in picture.labels],
                                  font_size=14, text_color="black", shape_opacity=0.6, always_visible=True)
     if picture.markers:
         points = np.array([p for _, p in picture.markers])
-        plotter.add_point_labels(points, [str(n) for n, _ in picture.markers], show_points=True,
+        plotter.add_point_labels(points, [chart_label(n) for n, _ in picture.markers], show_points=True,
                                  point_color=[c / 255 for c in MARKER_RGB], point_size=14,
                                  render_points_as_spheres=True, font_size=16, text_color="black",
                                  shape_opacity=0.0, always_visible=True)  # markers stay visible behind parts
-    plotter.add_title(picture.title, font_size=10, color="black")
+    plotter.add_title(chart_label(picture.title, 120), font_size=10, color="black")
     plotter.camera_position = "xy"
     plotter.camera.position = np.array(plotter.camera.focal_point) + np.array(VIEWS[view]) * 10.0
     plotter.camera.up = (0.0, 0.0, 1.0) if view != "top" else (0.0, 1.0, 0.0)
@@ -88,20 +90,26 @@ def _plotter(picture: Picture, view: str, size, off_screen: bool = True):
 
 
 def render_png(picture: Picture, path, *, view: str = "iso", size=(1000, 800)) -> np.ndarray:
-    """Render ``picture`` off-screen to a PNG at ``path``; returns the image (h, w, 3) uint8
-    (useful for tests) after writing it atomically."""
-    from ..io.export import check_writable
-
-    path = check_writable(path)
+    """Render ``picture`` off-screen to a PNG file at ``path`` (written as it stands: the
+    command line hands in a staged file of :mod:`tricharge.io.files`); returns the image
+    (h, w, 3) uint8 (useful for tests)."""
     plotter = _plotter(picture, view, size)
     try:
-        image = plotter.screenshot(return_img=True)
-        tmp = path.with_name(f".{path.stem}.tmp.png")
-        plotter.screenshot(str(tmp))
-        os.replace(tmp, path)
+        image = plotter.screenshot(str(path), return_img=True)
     finally:
         plotter.close()
     return image
+
+
+def png_bytes(picture: Picture, *, view: str = "iso", size=(1000, 800)) -> bytes:
+    """The PNG file :func:`render_png` would write, as bytes (for the HTML report)."""
+    import tempfile
+    from pathlib import Path
+
+    with tempfile.TemporaryDirectory() as folder:
+        path = Path(folder) / "picture.png"
+        render_png(picture, path, view=view, size=size)
+        return path.read_bytes()
 
 
 def project(picture: Picture, points, *, view: str = "iso", size=(1000, 800)) -> np.ndarray:
