@@ -22,9 +22,10 @@ import time
 import numpy as np
 
 from tricharge import shapes
-from tricharge.bem.capacitance import FOUR_PI_EPS0, solve_capacitance
+from tricharge.bem.capacitance import solve_capacitance
+from tricharge.bem.results import FOUR_PI_EPS0
 from tricharge.bem.convergence import adaptive_study, uniform_study
-from tricharge.bem.system import problem_from_arrays
+from tricharge.bem.problem import problem_from_arrays
 
 REFERENCE = 0.6606782 * FOUR_PI_EPS0
 

@@ -33,7 +33,7 @@ def one_size(frequency: int) -> dict:
     from scipy.spatial.distance import cdist
 
     from tricharge import shapes
-    from tricharge.bem.capacitance import FOUR_PI_EPS0
+    from tricharge.bem.results import FOUR_PI_EPS0
     from tricharge.bem.operators import DenseSingleLayer
     from tricharge.bem.panels import make_panels
 

@@ -41,7 +41,8 @@ def panel_count(shape: str, parameter: int) -> int:
 def one_case(shape: str, parameter: int, tol: float) -> dict:
     from tricharge import shapes
     from tricharge.bem import fmm
-    from tricharge.bem.capacitance import FOUR_PI_EPS0, capacitance_matrix
+    from tricharge.bem.capacitance import capacitance_matrix
+    from tricharge.bem.results import FOUR_PI_EPS0
     from tricharge.bem.panels import make_panels
 
     mesh = shapes.sphere(1.0, parameter) if shape == "sphere" else shapes.cube(1.0, parameter)
@@ -57,7 +58,7 @@ def one_case(shape: str, parameter: int, tol: float) -> dict:
     total = time.perf_counter() - t0
     charges = np.random.default_rng(0).normal(size=len(panels))
     t1 = time.perf_counter()
-    fmm._fmm(panels.centroids, charges[:, None], None, fmm.fmm_eps(tol), False)
+    fmm.multipole_sums(panels.centroids, charges[:, None], None, fmm.fmm_precision(tol), False)
     bare = time.perf_counter() - t1
     return {
         "shape": shape, "panels": len(panels), "total_s": total,

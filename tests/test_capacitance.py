@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 
 from tricharge import shapes
-from tricharge.bem.capacitance import FOUR_PI_EPS0, check_matrix, maxwell_from_charges, mutual_form
+from tricharge.bem.results import FOUR_PI_EPS0, check_matrix, maxwell_from_charges, mutual_form
 from tricharge.bem.fields import field_at, gauss_check, potential_at
 from tricharge.bem.panels import make_panels
 

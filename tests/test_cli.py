@@ -28,7 +28,7 @@ def test_solve_prints_the_matrix_and_writes_json(tmp_path, capsys):
     assert "Capacitance matrix, Maxwell form" in text and "(values in pF)" in text
     assert "320 panels" in text and "c1 - infinity" in text
     data = json.loads(out.read_text())
-    assert data["conductors"] == ["c1"] and data["panels"] == 320  # stable keys of DESIGN.md
+    assert data["conductors"] == ["c1"] and data["panels"] == 320  # stable keys of docs/design.md
     # 10 mm sphere: 4 pi eps0 * 0.01 m = 1.1127 pF; this coarse mesh is 1.3% low
     assert data["capacitance_matrix"][0][0] == pytest.approx(1.11265e-12, rel=0.02)
     assert data["unit"] == "mm" and data["method"] == "dense" and data["checks"]["problems"] == []

@@ -13,7 +13,8 @@ import pytest
 import trimesh
 
 from tricharge import Model, shapes, solve
-from tricharge.bem.capacitance import ground_conductors, merge_conductors, solve_voltages
+from tricharge.bem.capacitance import solve_voltages
+from tricharge.bem.results import ground_conductors, merge_conductors
 from tricharge.cli import main
 from tricharge.errors import TrichargeError
 from tricharge.io.spice import legal_names, spice_value, subcircuit
@@ -48,7 +49,7 @@ def _ngspice_or_skip():
 
 def test_ngspice_recovers_the_maxwell_matrix(solved):
     """Drive one port at a time with 1 V AC at 1 MHz, the others at 0 V; the port currents
-    give a column of the Maxwell matrix, C_jk = -Im(I_j) / omega (MEASURED.md)."""
+    give a column of the Maxwell matrix, C_jk = -Im(I_j) / omega (docs/measured.md)."""
     _ngspice_or_skip()
     folder, files, data = solved
     maxwell = np.array(data["capacitance_matrix"])
@@ -91,7 +92,7 @@ def test_csv_npz_and_vtu_load_back(solved):
     model = load(files["json"].with_suffix(".stl"), unit="mm")
     result = solve(model, method="dense")  # the same solve, in-process
     np.testing.assert_allclose(mesh.cell_data["area_m2"][0], result.panel_areas, rtol=1e-15)
-    np.testing.assert_array_equal(mesh.cell_data["conductor"][0], result.labels)
+    np.testing.assert_array_equal(mesh.cell_data["conductor"][0], result.panel_conductor)
     for k, name in enumerate(data["conductors"]):
         np.testing.assert_allclose(mesh.cell_data[f"sigma_C_per_m2_{name}_at_1V"][0], result.sigma[:, k], rtol=1e-12)
     np.testing.assert_allclose(mesh.points, model.vertices, rtol=1e-15)

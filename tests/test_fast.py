@@ -7,11 +7,14 @@ import pytest
 
 from tricharge import shapes
 from tricharge.bem import fmm
-from tricharge.bem.capacitance import FOUR_PI_EPS0, capacitance_matrix
+from tricharge.bem.capacitance import capacitance_matrix
+from tricharge.bem.results import FOUR_PI_EPS0
 from tricharge.bem.integrals import point_rule_potential, triangle_potential
 from tricharge.bem.kernels import near_values
-from tricharge.bem.operators import (AUTO_DENSE_LIMIT, FAST_POLICY, DenseSingleLayer, FastSingleLayer,
-                                     _kernel_arrays, make_operator, near_pairs)
+from tricharge.bem.factory import AUTO_DENSE_LIMIT, make_operator
+from tricharge.bem.nearfield import FAST_POLICY, kernel_arrays, near_pairs
+from tricharge.bem.operators import DenseSingleLayer, FastSingleLayer
+from tricharge.bem.problem import problem_from_arrays
 from tricharge.bem.panels import make_panels
 from tricharge.bem.preconditioners import LocalInverse
 from tricharge.bem.solvers import gmres, solve_linear
@@ -45,16 +48,27 @@ def test_direct_and_multipole_sums_agree():
     rng = np.random.default_rng(0)
     sources, charges, targets = rng.normal(size=(3000, 3)), rng.normal(size=(3000, 2)), rng.normal(size=(2500, 3))
     for points in (None, targets):
-        direct, direct_grad = fmm._direct(sources, charges, sources if points is None else points, True)
-        multipole, multipole_grad = fmm._fmm(sources, charges, points, 1e-6, True)
+        direct, direct_grad = fmm.direct_sums(sources, charges, sources if points is None else points, True)
+        multipole, multipole_grad = fmm.multipole_sums(sources, charges, points, 1e-6, True)
         assert np.abs(direct - multipole).max() < 1e-6 * np.abs(direct).max()
         assert np.abs(direct_grad - multipole_grad).max() < 1e-6 * np.abs(direct_grad).max()
+
+
+def test_dipole_sums_agree_direct_and_multipole(monkeypatch):
+    """The Gauss self terms of large closed interfaces go through the multipole library's
+    dipoles; its sign convention must match the direct sum's."""
+    rng = np.random.default_rng(1)
+    points, dipoles = rng.normal(size=(2500, 3)), rng.normal(size=(2500, 3))
+    multipole = fmm.dipole_sums(points, dipoles, precision=1e-9)
+    monkeypatch.setattr(fmm, "DIRECT_LIMIT", 1e12)
+    direct = fmm.dipole_sums(points, dipoles)
+    assert np.abs(direct - multipole).max() < 1e-8 * np.abs(direct).max()
 
 
 def test_compiled_kernel_matches_numpy_integrals():
     panels = make_panels(*shapes.cube(1.0, 6, graded=True))
     i, j, rel = near_pairs(panels.centroids, panels, FAST_POLICY.corrected_within)
-    compiled = near_values(panels.centroids, i, j, rel, *_kernel_arrays(panels, FAST_POLICY), False)
+    compiled = near_values(panels.centroids, i, j, rel, *kernel_arrays(panels, FAST_POLICY), False)
     reference = np.empty(len(i))
     closed = rel < FAST_POLICY.closed_form_within
     reference[closed] = triangle_potential(panels.centroids[i[closed]], panels.corners[j[closed]])
@@ -126,9 +140,9 @@ def test_lockstep_gmres_equals_column_by_column():
 
 
 def test_auto_picks_by_panel_count():
-    small = make_panels(*shapes.sphere(1.0, 6))
-    large = make_panels(*shapes.sphere(1.0, 14))
-    assert len(small) <= AUTO_DENSE_LIMIT < len(large)
+    small = problem_from_arrays(*shapes.sphere(1.0, 6), np.zeros(720, np.int64))
+    large = problem_from_arrays(*shapes.sphere(1.0, 14), np.zeros(3920, np.int64))
+    assert len(small.panels) <= AUTO_DENSE_LIMIT < len(large.panels)
     assert make_operator(small).method == "dense" and make_operator(large).method == "fast"
     with pytest.raises(ValueError, match="method must be auto, dense or fast"):
         make_operator(small, "quick")

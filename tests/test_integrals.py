@@ -106,7 +106,7 @@ def test_self_term_at_centroid():
 
 
 def test_points_on_edge_lines_and_vertices_are_finite():
-    """The pitfall of MEASURED.md: in-plane points on the line of an edge gave NaN."""
+    """The pitfall recorded in docs/measured.md: in-plane points on the line of an edge gave NaN."""
     a, b, c = TRI
     points = np.array([a + 1.7 * (b - a), a - 0.3 * (b - a), 0.5 * (a + b), a, b + 2 * (b - c), c])
     values = triangle_potential(points, np.repeat(TRI[None], len(points), axis=0))

@@ -73,7 +73,7 @@ def test_binary_and_ascii_stl_agree(tmp_path):
 
 
 def test_components_numbered_by_lowest_triangle(tmp_path):
-    """DESIGN.md: c1, c2, ... in the order of each component's lowest triangle index."""
+    """docs/design.md: c1, c2, ... in the order of each component's lowest triangle index."""
     v, t, labels = _two_cubes()
     order = np.argsort(-labels, kind="stable")  # the second cube's triangles first
     path = tmp_path / "swapped.stl"

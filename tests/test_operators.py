@@ -6,7 +6,8 @@ from scipy.sparse.linalg import LinearOperator, aslinearoperator
 
 from tricharge import shapes
 from tricharge.bem.integrals import triangle_potential
-from tricharge.bem.operators import DenseSingleLayer, NearFieldPolicy, assemble_single_layer, near_pairs
+from tricharge.bem.nearfield import NearFieldPolicy, near_pairs
+from tricharge.bem.operators import DenseSingleLayer, StoredMatrix, assemble_single_layer
 from tricharge.bem.panels import make_panels
 from tricharge.bem.solvers import solve_linear
 from tricharge.errors import SolverError
@@ -99,4 +100,4 @@ def test_gmres_non_convergence_raises_with_partial_result():
 def test_singular_system_is_reported():
     matrix = np.ones((3, 3))
     with pytest.raises(SolverError, match="singular"):
-        solve_linear(type("Stored", (), {"matrix": matrix, "shape": (3, 3)})(), np.ones(3))
+        solve_linear(StoredMatrix(matrix), np.ones(3))

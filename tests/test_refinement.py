@@ -8,9 +8,10 @@ import pytest
 from tricharge import shapes
 from tricharge.bem import convergence as cv
 from tricharge.bem.capacitance import solve_capacitance
-from tricharge.bem.panels import (make_panels, onto_disk_rim, onto_ellipsoid, onto_sphere,
-                                  refine_uniformly, split_triangles)
-from tricharge.bem.system import problem_from_arrays
+from tricharge.bem.panels import make_panels
+from tricharge.bem.refinement import (onto_disk_rim, onto_ellipsoid, onto_sphere, refine_uniformly, refined_problem,
+                                      split_triangles)
+from tricharge.bem.problem import problem_from_arrays
 from tricharge.mesh import edge_ids, edge_use, neighbour_pairs
 
 
@@ -123,7 +124,7 @@ def test_study_sums_charges_back_onto_the_base_panels():
     study = cv.uniform_study(problem_from_arrays(v, t, labels), 2)
     r = study.result
     assert r.sigma.shape == (len(t), 2) and r.n_panels == len(t)
-    np.testing.assert_array_equal(r.labels, labels)
+    np.testing.assert_array_equal(r.panel_conductor, labels)
     charges = np.array([[(r.sigma[labels == i, k] * r.panel_areas[labels == i]).sum() for k in range(2)]
                         for i in range(2)])
     np.testing.assert_allclose(0.5 * (charges + charges.T), study.matrices[-1], rtol=1e-12)  # symmetrised
@@ -168,7 +169,7 @@ def test_coarse_solution_carried_over_saves_iterations():
     measured 10 -> 7 on a 12k-panel cube, 7 -> 4 on a 20k-panel sphere)."""
     problem = problem_from_arrays(*shapes.cube(1.0, 8), np.zeros(768, np.int64))
     coarse = solve_capacitance(problem, method="fast")
-    fine, parent = cv.refined_problem(problem)
+    fine, parent = refined_problem(problem)
     cold = solve_capacitance(fine, method="fast")
     warm = solve_capacitance(fine, method="fast", start=coarse.sigma[parent])
     assert warm.iterations < cold.iterations
@@ -199,7 +200,7 @@ def test_studies_run_with_plane_dielectric_and_floating_parts():
         study = cv.uniform_study(problem, 3, method=method)
         assert study.result.capacitance.shape == (1, 1) and study.result.floating == ("c2",)
         assert abs(study.result.capacitance[0, 0] / single.capacitance[0, 0] - 1) < 0.05
-        np.testing.assert_array_equal(study.result.labels, np.where(conductor == 0, 0, -1))
+        np.testing.assert_array_equal(study.result.panel_conductor, np.where(conductor == 0, 0, -1))
     adaptive = cv.adaptive_study(problem, 0.02, max_panels=20_000)
     assert adaptive.stop in ("accuracy reached", "panel budget reached") and len(adaptive.panels) >= 2
 

@@ -43,7 +43,7 @@ def assert_closed_and_consistent(v, t):
 
 
 def _sphere(radius, h):
-    return shapes.revolve(shapes._arc_rz((0.0, 0.0), radius, -np.pi / 2, np.pi / 2), h)
+    return shapes.revolve(shapes.arc_rz((0.0, 0.0), radius, -np.pi / 2, np.pi / 2), h)
 
 
 BODIES = {
@@ -198,7 +198,7 @@ def test_rotation_minimising_frames_do_not_twist_on_a_plane_curve():
     points = np.column_stack([s, np.sin(s), 0 * s])
     tangents = np.gradient(points, axis=0)
     tangents /= np.linalg.norm(tangents, axis=1, keepdims=True)
-    normals = shapes._rotation_minimising_frames(points, tangents)
+    normals = shapes.rotation_minimising_frames(points, tangents)
     np.testing.assert_allclose(np.linalg.norm(normals, axis=1), 1.0, rtol=1e-12)
     np.testing.assert_allclose(np.einsum("ij,ij->i", normals, tangents), 0.0, atol=1e-12)
     np.testing.assert_allclose(normals[:, 2], normals[0, 2], atol=1e-12)  # keeps its angle to the plane
@@ -215,7 +215,7 @@ def test_rotation_minimising_frames_turn_against_the_torsion_of_a_helix():
     tangents = np.column_stack([-big * np.sin(s), big * np.cos(s), c + 0 * s]) / np.hypot(big, c)
     frenet_n = np.column_stack([-np.cos(s), -np.sin(s), 0 * s])
     frenet_b = np.cross(tangents, frenet_n)
-    u = shapes._rotation_minimising_frames(points, tangents)
+    u = shapes.rotation_minimising_frames(points, tangents)
     angle = np.unwrap(np.arctan2(np.einsum("ij,ij->i", u, frenet_b), np.einsum("ij,ij->i", u, frenet_n)))
     assert angle[-1] - angle[0] == pytest.approx(-2 * np.pi * c / np.hypot(big, c), abs=1e-4)
 

@@ -326,3 +326,22 @@ def pairs_within(targets, centers, radii) -> tuple[np.ndarray, np.ndarray, np.nd
     i : (p,) int64; j : (p,) int64; distance : (p,) float64
     """
     return PairFinder(centers, radii).query(targets)
+
+
+def closed_pieces(triangles) -> tuple[np.ndarray, np.ndarray]:
+    """The connected pieces of a surface and which of them are closed.
+
+    Returns
+    -------
+    piece : (m,) int64, piece index of every triangle (see :func:`connected_components`)
+    closed : (pieces,) bool, True where every edge of the piece is used by exactly two of
+        its triangles (a watertight skin)
+    """
+    t = np.asarray(triangles, dtype=np.int64)
+    piece = connected_components(t)
+    _, side = edge_ids(t)
+    count = np.bincount(side.ravel())
+    open_edge_piece = np.repeat(piece, 3)[(count[side.ravel()] != 2)]
+    closed = np.ones(int(piece.max()) + 1, dtype=bool)
+    closed[open_edge_piece] = False
+    return piece, closed

@@ -6,10 +6,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .bem.capacitance import Result, memory_estimate, resolve_method, solve_capacitance, solve_voltages
+from .bem.capacitance import solve_capacitance, solve_voltages
+from .bem.factory import memory_estimate, resolve_method
 from .bem.fields import field_at, hot_spots, potential_at, surface_field
 from .bem.panels import make_panels
-from .bem.system import Problem
+from .bem.problem import Problem
+from .bem.results import Result
 from .errors import OptionError
 from .model import Model
 from .resources import check_memory
@@ -81,7 +83,7 @@ def check_reductions(model: Model, nets: dict | None = None, grounded=(), refere
     """Check ``--merge``/``--ground``/``--reference`` names against the model before any
     solve (OptionError naming the bad one): the same algebra as
     :meth:`~tricharge.bem.capacitance.Result.reduced`, on a stand-in matrix."""
-    from .bem.capacitance import ground_conductors, merge_conductors
+    from .bem.results import ground_conductors, merge_conductors
 
     names = tuple(c.name for c in model.conductors if not c.floating)
     matrix = np.eye(len(names))
@@ -104,34 +106,19 @@ def is_simple(model: Model) -> bool:
 
 def check_solve_memory(model: Model, method: str, n_panels: int | None = None, *, what: str | None = None) -> None:
     """Refuse (OptionError, with advice) a solve of ``n_panels`` (default: the model's)
-    whose estimated memory (:func:`~tricharge.bem.capacitance.memory_estimate`) exceeds
+    whose estimated memory (:func:`~tricharge.bem.factory.memory_estimate`) exceeds
     what the machine has available. ``method`` may be "auto"."""
-    from .bem.capacitance import AUTO_DENSE_LIMIT_GENERAL
-    from .bem.operators import AUTO_DENSE_LIMIT
-
     n = model.n_panels if n_panels is None else int(n_panels)
     simple = is_simple(model)
-    if method not in ("auto", "dense", "fast"):
-        raise OptionError(f"method must be auto, dense or fast, got {method!r}")
-    chosen = method if method != "auto" else (
-        "dense" if n <= (AUTO_DENSE_LIMIT if simple else AUTO_DENSE_LIMIT_GENERAL) else "fast")
+    chosen = resolve_method(n, method, conductors_only=simple)
     needed = memory_estimate(n, chosen, simple=simple, columns=len(model.conductors))
-    label = what or f"{model.source}"
     advice = ("use --method fast (memory growing linearly with the panel count)" if chosen == "dense" else
               "use a coarser mesh, fewer refinement levels or a lower --max-panels")
-    check_memory(needed, f"{label}: a {chosen} solve of {n:,} panels", advice)
+    check_memory(needed, f"{what or model.source}: a {chosen} solve of {n:,} panels", advice)
 
 
-#: Bytes per sample point kept until the run ends: coordinates, potential and field,
-#: their CSV line and their JSON record (Python objects), measured roughly (our figure).
-BYTES_PER_SAMPLE = 2_000
 #: Points evaluated at a time, so near-field pair lists stay bounded (our choice).
 SAMPLE_CHUNK = 20_000
-
-
-def check_sample_memory(n_points: int, what: str) -> None:
-    """Refuse sampling requests too large for the machine (see :data:`BYTES_PER_SAMPLE`)."""
-    check_memory(n_points * BYTES_PER_SAMPLE, f"{what}: {n_points:,} sample points", "ask for fewer points")
 
 
 @dataclass(frozen=True, repr=False)
@@ -275,31 +262,6 @@ def _utilisation(model: Model, volts: np.ndarray, surface):
     return gap, abs(volts[driven[0]] - volts[driven[1]]) / gap / e_max
 
 
-def line_points(start, end, count: int) -> np.ndarray:
-    """(count, 3) points evenly spaced from ``start`` to ``end`` (both included)."""
-    s = np.linspace(0.0, 1.0, int(count))[:, None]
-    return np.asarray(start, float) + s * (np.asarray(end, float) - np.asarray(start, float))
-
-
-def section_grid(model: Model, axis: str, value: float, count: int, margin: float = 0.2):
-    """A plane section ``axis = value`` (metres) across the model's bounding box plus
-    ``margin`` of its size on each side.
-
-    Returns points (count*count, 3) in VTK order (first in-plane axis fastest), and the
-    image's origin (3,), spacing (3,) and dimensions (3,), all in metres.
-    """
-    k = "xyz".index(axis)
-    lo, hi = model.vertices.min(axis=0), model.vertices.max(axis=0)
-    pad = margin * (hi - lo)
-    lo, hi = lo - pad, hi + pad
-    lo[k] = hi[k] = value
-    dims = np.where(np.arange(3) == k, 1, int(count))
-    axes = [np.linspace(lo[d], hi[d], dims[d]) for d in range(3)]
-    zz, yy, xx = np.meshgrid(axes[2], axes[1], axes[0], indexing="ij")
-    points = np.column_stack([xx.ravel(), yy.ravel(), zz.ravel()])
-    spacing = np.where(dims > 1, (hi - lo) / np.maximum(dims - 1, 1), 1.0)
-    return points, lo, spacing, dims
-
 
 def refine_peaks(result: FieldResult, model: Model, *, radius_panels: float = 4.0, method: str = "auto",
                  tol: float = 1e-8):
@@ -309,7 +271,7 @@ def refine_peaks(result: FieldResult, model: Model, *, radius_panels: float = 4.
     A peak that grows markedly under refinement sits on a singular feature (an edge or
     corner): its value is a property of the mesh, not of the design.
     """
-    from .bem.panels import split_triangles
+    from .bem.refinement import split_triangles
 
     problem = result.problem
     panels = problem.panels
@@ -318,7 +280,7 @@ def refine_peaks(result: FieldResult, model: Model, *, radius_panels: float = 4.
     for spot in peaks:
         near |= np.linalg.norm(panels.centroids - np.array(spot.location), axis=1) < radius_panels * spot.panel_size
     vertices, triangles, parent = split_triangles(panels.vertices, panels.triangles, near)
-    refined = Problem(make_panels(vertices, triangles, source=model.source), problem.conductor[parent],
+    refined = Problem(make_panels(vertices, triangles, source=model.source), problem.panel_conductor[parent],
                       problem.permittivity[parent], problem.contrast[parent], problem.floating, problem.ground_z,
                       problem.names)
     charge = np.array([c.net_charge for c in model.conductors])

@@ -14,8 +14,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .mesh import (aspect_ratios, connected_components, edge_use, orient_consistently, pairs_within,
-                   signed_volume, triangles_intersect, winding_numbers)
+from .mesh import (aspect_ratios, closed_pieces, edge_use, orient_consistently, pairs_within, signed_volume,
+                   triangles_intersect, winding_numbers)
 from .units import format_eng, metres_per
 
 #: Aspect ratio (1 = equilateral) above which a triangle is reported as a needle.
@@ -68,19 +68,9 @@ def _parts(model):
     return out
 
 
-def _closed_pieces(triangles: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Piece index per triangle and, per piece, whether it is closed (every edge used twice)."""
-    pieces = connected_components(triangles)
-    edges, count, _ = edge_use(triangles)
-    open_vertices = np.unique(edges[count != 2])
-    has_open = np.isin(triangles, open_vertices).any(axis=1)
-    closed = ~np.bincount(pieces, weights=has_open, minlength=pieces.max() + 1).astype(bool)
-    return pieces, closed
-
-
-def _nesting_depth(vertices, triangles, pieces, closed_pieces) -> dict[int, int]:
+def _nesting_depth(vertices, triangles, pieces, closed_ids) -> dict[int, int]:
     """For each closed piece, how many other closed pieces of the same part enclose it."""
-    depth = {int(p): 0 for p in closed_pieces}
+    depth = {int(p): 0 for p in closed_ids}
     for p in depth:
         probe = vertices[triangles[pieces == p][0, 0]][None]
         for q in depth:
@@ -103,14 +93,14 @@ def orient_parts(model) -> tuple[np.ndarray, list[str], list[str]]:
         _, _, same = edge_use(local)
         flipped = 0
         if same.any():
-            pieces, closed = _closed_pieces(local)
+            pieces, closed = closed_pieces(local)
             open_mixed = kind == "interface" and not closed[pieces].all()
             if open_mixed:
                 errors.append(f"{model.source}: interface '{record.name}' is an open surface whose normals disagree "
                               f"across {int(same.sum())} edges; orient it consistently so 'outside' is one side")
                 continue
             local, flipped = orient_consistently(local)
-        pieces, closed = _closed_pieces(local)
+        pieces, closed = closed_pieces(local)
         depth = _nesting_depth(model.vertices, local, pieces, np.flatnonzero(closed))
         for p, d in depth.items():
             members = pieces == p
@@ -128,7 +118,7 @@ def _summaries(model, parts, aspects, sizes, areas) -> list[PartSummary]:
     out = []
     for kind, record, idx in parts:
         corners = model.vertices[model.triangles[idx]].reshape(-1, 3)
-        _, closed = _closed_pieces(model.triangles[idx])
+        _, closed = closed_pieces(model.triangles[idx])
         if kind == "conductor":
             detail = ("floating" if record.floating else
                       format_eng(record.voltage, "V", keep_zeros=False) if record.voltage is not None else "")

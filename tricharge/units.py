@@ -10,8 +10,10 @@ from .names import printable
 #: Metres per unit. "um" is micrometres; "mil" is a thousandth of an inch.
 LENGTH_UNITS: dict[str, float] = {"m": 1.0, "cm": 1e-2, "mm": 1e-3, "um": 1e-6, "in": 0.0254, "mil": 2.54e-5}
 
-_PREFIXES = [(1e-18, "a"), (1e-15, "f"), (1e-12, "p"), (1e-9, "n"), (1e-6, "u"), (1e-3, "m"), (1.0, ""),
-             (1e3, "k"), (1e6, "M"), (1e9, "G")]
+#: SI prefixes: symbol -> scale (the one table of the package; "u" is micro, "µ" too on input).
+SI_PREFIXES: dict[str, float] = {"a": 1e-18, "f": 1e-15, "p": 1e-12, "n": 1e-9, "u": 1e-6, "m": 1e-3, "": 1.0,
+                                 "k": 1e3, "M": 1e6, "G": 1e9}
+_INPUT_PREFIXES = {**SI_PREFIXES, "µ": 1e-6}
 
 
 def metres_per(unit: str) -> float:
@@ -31,8 +33,8 @@ def prefix_for(value: float) -> tuple[float, str]:
     magnitude = abs(value)
     if magnitude == 0 or not math.isfinite(magnitude):
         return 1.0, ""
-    chosen = _PREFIXES[0]
-    for scale, symbol in _PREFIXES:
+    chosen = (SI_PREFIXES["a"], "a")
+    for symbol, scale in sorted(SI_PREFIXES.items(), key=lambda item: item[1]):
         if magnitude >= scale * (1 - 1e-12):
             chosen = (scale, symbol)
     return chosen
@@ -48,10 +50,6 @@ def format_eng(value: float, unit: str, digits: int = 4, *, keep_zeros: bool = T
     scale, symbol = prefix_for(value)
     number = f"{value / scale:#.{digits}g}" if keep_zeros else f"{value / scale:.{digits}g}"
     return f"{number.rstrip('.')} {symbol}{unit}"
-
-
-_SI_PREFIX = {"a": 1e-18, "f": 1e-15, "p": 1e-12, "n": 1e-9, "u": 1e-6, "µ": 1e-6, "m": 1e-3, "": 1.0,
-              "k": 1e3, "M": 1e6, "G": 1e9}
 
 
 def parse_quantity(value, unit: str, *, what: str = "value") -> float:
@@ -72,7 +70,7 @@ def parse_quantity(value, unit: str, *, what: str = "value") -> float:
     if not match or (match.group(2) and not text.endswith(unit)):
         raise OptionError(f"{what}: cannot read {printable(value)!r} as {unit}; write a number like 1500 or "
                           f"'1.5k{unit}'")
-    return _finite(float(match.group(1)) * _SI_PREFIX[match.group(2)], value, unit, what)
+    return _finite(float(match.group(1)) * _INPUT_PREFIXES[match.group(2)], value, unit, what)
 
 
 #: Largest magnitude accepted for a voltage, charge or field strength: far beyond any

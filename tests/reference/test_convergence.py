@@ -13,10 +13,10 @@ import numpy as np
 import pytest
 
 from tricharge import shapes
-from tricharge.bem.capacitance import EPS0, FOUR_PI_EPS0
+from tricharge.bem.results import EPS0, FOUR_PI_EPS0
 from tricharge.bem.convergence import EXTRAPOLATED, adaptive_study, uniform_study
-from tricharge.bem.panels import onto_disk_rim, onto_ellipsoid, onto_sphere, onto_spheres
-from tricharge.bem.system import problem_from_arrays
+from tricharge.bem.refinement import onto_disk_rim, onto_ellipsoid, onto_sphere, onto_spheres
+from tricharge.bem.problem import problem_from_arrays
 
 from test_two_spheres import two_sphere_series
 

@@ -7,9 +7,10 @@ import numpy as np
 import pytest
 
 from tricharge import shapes
-from tricharge.bem.capacitance import FOUR_PI_EPS0, solve_capacitance
+from tricharge.bem.capacitance import solve_capacitance
+from tricharge.bem.results import FOUR_PI_EPS0
 from tricharge.bem.fields import potential_at
-from tricharge.bem.system import problem_from_arrays
+from tricharge.bem.problem import problem_from_arrays
 
 
 def _shell_problem(a, b, eps_shell, fa=10, fb=12):
@@ -36,7 +37,7 @@ def test_energy_from_charges_and_potentials():
     problem = _shell_problem(1.0, 2.0, 4.0)
     result = solve_capacitance(problem, method="dense")
     sigma = result.sigma[:, 0]
-    on_conductor = problem.conductor == 0
+    on_conductor = problem.panel_conductor == 0
     phi = potential_at(problem.panels.centroids[on_conductor], problem.panels, sigma)
     free = 4.0 * sigma[on_conductor] * problem.panels.areas[on_conductor]
     assert 0.5 * np.sum(free * phi) == pytest.approx(0.5 * result.capacitance[0, 0] * 1.0**2, rel=1e-3)
@@ -53,7 +54,7 @@ def test_floating_shell_around_a_sphere():
 
 
 def sphere_over_plane(radius, height, terms=2000):
-    """Image-charge series, REFERENCES.md row 6: cosh(alpha) = h/R,
+    """Image-charge series, docs/references.md row 6: cosh(alpha) = h/R,
     C = 4 pi eps0 R sinh(alpha) sum_{n>=1} 1/sinh(n alpha)
     (Smythe, Static and Dynamic Electricity, 3rd ed., 1968, section 5.08, from memory)."""
     alpha = np.arccosh(height / radius)
@@ -63,7 +64,7 @@ def sphere_over_plane(radius, height, terms=2000):
 
 
 def test_series_matches_the_published_sample():
-    """REFERENCES.md sample: R = 1, h = 1.5 gives C / (4 pi eps0) = 1.5353705088."""
+    """docs/references.md sample: R = 1, h = 1.5 gives C / (4 pi eps0) = 1.5353705088."""
     assert sphere_over_plane(1.0, 1.5) / FOUR_PI_EPS0 == pytest.approx(1.5353705088, rel=1e-9)
 
 

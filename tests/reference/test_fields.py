@@ -7,7 +7,7 @@ from tricharge import shapes
 from tricharge.bem.capacitance import solve_voltages
 from tricharge.bem.fields import edge_sharpness, field_at, hot_spots, potential_at, surface_field
 from tricharge.bem.panels import make_panels
-from tricharge.bem.system import problem_from_arrays
+from tricharge.bem.problem import problem_from_arrays
 
 from test_dielectrics import _shell_problem
 
@@ -30,7 +30,7 @@ def test_sphere_surface_and_outside_field():
 @pytest.mark.parametrize("gap, frequency, peak", [(0.1, 20, 10.67574867), (1.0, 12, 1.77028119)])
 def test_peak_field_of_a_sphere_over_a_plane(gap, frequency, peak):
     """Sphere R = 1 m at 1 V over a grounded plane: peak surface field from the image-charge
-    series (REFERENCES.md row 10; Maxwell 1873, Smythe 1968 section 5.08). Within 2 %."""
+    series (docs/references.md row 9; Maxwell 1873, Smythe 1968 section 5.08). Within 2 %."""
     v, t = shapes.sphere(1.0, frequency, center=(0.0, 0.0, 1.0 + gap))
     problem = problem_from_arrays(v, t, np.zeros(len(t), np.int64), ground_z=0.0)
     surface = surface_field(problem, solve_voltages(problem, [1.0]).sigma)

@@ -2,7 +2,7 @@
 
 Source: Hammerstad & Jensen, "Accurate models for microstrip computer-aided design",
 IEEE MTT-S International Microwave Symposium Digest (1980) 407-409: the zero-thickness
-strip's capacitance per unit length in air (REFERENCES.md row 9, constants from
+strip's capacitance per unit length in air (docs/references.md row 8, constants from
 memory, there checked against an independent 2-D solution to 1.5e-5) and the same
 paper's effective permittivity (its formula and constants from memory here). Our strip
 has thickness 0.02 h and the slab is 10 h wide and as long as the strip, so the
@@ -13,8 +13,9 @@ lengths.
 import numpy as np
 import pytest
 
-from tricharge.bem.capacitance import EPS0, solve_capacitance
-from tricharge.bem.system import problem_from_arrays
+from tricharge.bem.capacitance import solve_capacitance
+from tricharge.bem.results import EPS0
+from tricharge.bem.problem import problem_from_arrays
 from tricharge.mesh import merge_vertices
 from tricharge.shapes import _grid_face
 
@@ -30,7 +31,7 @@ def hammerstad_jensen(u: float, eps_r: float) -> float:
 
 
 def test_formula_reproduces_the_published_air_values():
-    """REFERENCES.md row 9: C'/eps0 = 2.97989872 at u = 1 and 7.63107732 at u = 5 in air."""
+    """docs/references.md row 8: C'/eps0 = 2.97989872 at u = 1 and 7.63107732 at u = 5 in air."""
     assert hammerstad_jensen(1.0, 1.0) == pytest.approx(2.97989872, rel=1e-8)
     assert hammerstad_jensen(5.0, 1.0) == pytest.approx(7.63107732, rel=1e-8)
 

@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 from tricharge import shapes
-from tricharge.bem.capacitance import EPS0, FOUR_PI_EPS0
+from tricharge.bem.results import EPS0, FOUR_PI_EPS0
 
 from helpers import observed_order, solve_shape
 
@@ -17,7 +17,7 @@ def test_sphere_capacitance_and_second_order_convergence():
     """Sphere of radius R: C = 4 pi eps0 R.
 
     Source: Jackson, Classical Electrodynamics, 3rd ed. (1999), ch. 1 (exact). Flat
-    panels on a smooth body converge as O(h^2) (REFERENCES.md advice); the error here
+    panels on a smooth body converge as O(h^2) (docs/references.md); the error here
     includes the geometric error of the inscribed polyhedron. Within 0.5% at 5120 panels.
     """
     radius = 0.37
@@ -36,7 +36,7 @@ def test_thin_disk():
     """Thin circular disk of radius R: C = 8 eps0 R.
 
     Source: Jackson, Classical Electrodynamics, 3rd ed. (1999), section 3.12 (section from
-    memory, see REFERENCES.md). The edge singularity slows convergence to about O(h);
+    memory, see docs/references.md). The edge singularity slows convergence to about O(h);
     within 2% at 2400 panels and improving with refinement.
     """
     radius = 2.0
@@ -53,7 +53,7 @@ def test_unit_cube_and_convergence():
 
     Source: Hwang & Mascagni, "Electrical capacitance of the unit cube", J. Appl. Phys. 95,
     3798 (2004). Within 1% on a modest mesh (1200 panels); on uniform meshes the edges
-    make the error fall about as O(h) (REFERENCES.md advice), and an edge-graded mesh of
+    make the error fall about as O(h) (docs/references.md), and an edge-graded mesh of
     the same size is at least 3x closer.
     """
     reference = 0.6606782

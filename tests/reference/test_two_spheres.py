@@ -1,7 +1,7 @@
 """Two spheres: the full 2x2 Maxwell matrix against the bispherical series.
 
 Source: Smythe, Static and Dynamic Electricity, 3rd ed. (1968), section 5.08 (section
-from memory), in the form of ../shared/REFERENCES.md row 5, which agrees with Maxwell's
+from memory), in the form of docs/references.md row 5, which agrees with Maxwell's
 successive images to 1e-15:
     cosh U = (c^2 - a^2 - b^2) / (2ab)
     C_aa = 4 pi eps0 ab sinh U sum_{n>=0} 1 / (a sinh nU + b sinh (n+1)U)
@@ -13,7 +13,7 @@ import numpy as np
 import pytest
 
 from tricharge import shapes
-from tricharge.bem.capacitance import FOUR_PI_EPS0
+from tricharge.bem.results import FOUR_PI_EPS0
 
 from helpers import solve_shape
 
@@ -29,7 +29,7 @@ def two_sphere_series(a, b, c, terms=400):
 
 
 def test_series_reproduces_the_published_sample():
-    """REFERENCES.md sample: a = b = 1, c = 2.5 -> [[1.25302274, -0.52537346], ...]."""
+    """docs/references.md sample: a = b = 1, c = 2.5 -> [[1.25302274, -0.52537346], ...]."""
     np.testing.assert_allclose(two_sphere_series(1.0, 1.0, 2.5), [[1.25302274, -0.52537346], [-0.52537346, 1.25302274]],
                                rtol=1e-8)
 

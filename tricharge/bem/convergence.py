@@ -27,6 +27,9 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from ..errors import OptionError
+from .capacitance import solve_capacitance
+from .refinement import refined_problem
+from .results import ESTIMATE_METHOD  # noqa: F401  (re-exported: the words for the method used here)
 
 #: Relative accuracy of one solve, as a fraction of sqrt(C_ii C_jj) (fast vs dense, 1e-4).
 FLOOR = 1e-4
@@ -35,11 +38,6 @@ ORDER_RANGE = (0.5, 6.0)
 #: Safety factor on the last change when no order can be trusted (Roache 1994, two grids).
 SAFETY = 3.0
 
-#: How values and estimates are obtained, in words (reports, JSON).
-ESTIMATE_METHOD = ("Richardson extrapolation over the last three levels with the observed order p per entry; "
-                   "estimate |extrapolated - finest| / r^p, at least 1e-4 of sqrt(C_ii C_jj) (adaptive: at least "
-                   "the change since the previous level); entries not in the asymptotic range keep the finest "
-                   "value with 3x its last change")
 
 EXTRAPOLATED, SETTLED, NOT_ASYMPTOTIC, TWO_LEVELS = "extrapolated", "settled", "not asymptotic", "two levels"
 
@@ -160,17 +158,6 @@ class Study:
                 "stop": self.stop, "target": self.target, "notes": list(self.notes)}
 
 
-def refined_problem(problem, mask=None, *, conforming: bool = True, project=None):
-    """The problem on refined panels (all of them when ``mask`` is None), with each new
-    panel's role copied from its parent. Returns (problem, parent (N',))."""
-    from .panels import make_panels, split_triangles
-
-    panels = problem.panels
-    if mask is None:
-        mask = np.ones(len(panels), dtype=bool)
-    v, t, parent = split_triangles(panels.vertices, panels.triangles, mask, conforming=conforming, project=project)
-    return replace(problem, panels=make_panels(v, t), conductor=problem.conductor[parent],
-                   permittivity=problem.permittivity[parent], contrast=problem.contrast[parent]), parent
 
 
 def matters(matrix: np.ndarray, share: float = 0.01) -> np.ndarray:
@@ -193,8 +180,8 @@ def _back_to_base(result, problem, chain):
     charges = np.zeros((n, result.sigma.shape[1]))
     np.add.at(charges, owner, result.sigma * result.panel_areas[:, None])
     labels = np.full(n, -1, dtype=np.int64)
-    labels[owner] = result.labels
-    return replace(result, sigma=charges / problem.panels.areas[:, None], labels=labels,
+    labels[owner] = result.panel_conductor
+    return replace(result, sigma=charges / problem.panels.areas[:, None], panel_conductor=labels,
                    panel_areas=problem.panels.areas, n_panels=n)
 
 
@@ -229,8 +216,6 @@ def uniform_study(problem, levels: int = 3, *, project=None, method: str = "auto
     ``project`` moves new vertices onto an exact surface (see :mod:`.panels`); without it
     the refined meshes keep the flat panels' geometry, which is what a CAD mesh describes.
     """
-    from .capacitance import solve_capacitance
-
     if levels < 2:
         raise OptionError(f"a refinement study needs at least two levels, got {levels}")
     results, chain, current, parent = [], [], problem, None
@@ -291,8 +276,6 @@ def adaptive_study(problem, accuracy: float, *, max_panels: int = 200_000, proje
     value since the previous level, and the target counts as reached only from the
     fourth level on.
     """
-    from .capacitance import solve_capacitance
-
     if not 0 < accuracy < 1:
         raise OptionError(f"accuracy must be a fraction between 0 and 1, got {accuracy!r}")
     results, chain, current, notes, parent = [], [], problem, [], None

@@ -13,22 +13,23 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .capacitance import EPS0, FOUR_PI_EPS0
 from .fmm import potentials
-from .operators import NearFieldPolicy, far_rule_pairs, near_pairs, pair_integrals
+from .nearfield import (GENERAL_FAST_POLICY, NearFieldPolicy, far_rule_pairs, near_correction_rows, near_pairs,
+                        pair_integrals)
 from .panels import Panels
-from .system import GENERAL_FAST_POLICY, near_rows, gauss_self_terms
+from .results import EPS0, FOUR_PI_EPS0
+from .system import gauss_self_terms
 
 #: Multipole precision for field evaluation (well below the 1 % checks made on fields).
-FIELD_FMM_EPS = 1e-7
+FIELD_FMM_PRECISION = 1e-7
 
 
 def _far_sum(points: np.ndarray, sources: np.ndarray, charges: np.ndarray, kind: str) -> np.ndarray:
     """Potential (M,) or field (M, 3) of point charges, geometric units; coincident points
     skipped. Direct sums for small problems, the multipole method for large ones."""
     if kind == "potential":
-        return potentials(sources, charges, points, eps=FIELD_FMM_EPS)
-    return -potentials(sources, charges, points, eps=FIELD_FMM_EPS, gradient=True)[1]
+        return potentials(sources, charges, points, precision=FIELD_FMM_PRECISION)
+    return -potentials(sources, charges, points, precision=FIELD_FMM_PRECISION, gradient=True)[1]
 
 
 def _evaluate(points, panels, sigma, policy, kind):
@@ -115,8 +116,8 @@ def surface_field(problem, sigma, *, policy: NearFieldPolicy | None = None) -> S
         normals = panels.normals[rows]
         normal = np.einsum("md,md->m", e, normals)
         # the curvature a flat panel misses: the same Gauss self term the solve used
-        near = near_rows(panels.centroids[rows], panels, GENERAL_FAST_POLICY, "field", normals)
-        members, self_terms = gauss_self_terms(panels, rows, near, FIELD_FMM_EPS)
+        near = near_correction_rows(panels.centroids[rows], panels, GENERAL_FAST_POLICY, "field", normals)
+        members, self_terms = gauss_self_terms(panels, rows, near, FIELD_FMM_PRECISION)
         normal[members] += self_terms * sigma[rows[members]] / FOUR_PI_EPS0
         outside[rows] = normal + sigma[rows] / (2.0 * EPS0)
         inside[rows] = normal - sigma[rows] / (2.0 * EPS0)

@@ -25,12 +25,12 @@ def _fmm3dpy():
     return fmm3dpy
 
 
-def fmm_eps(tol: float) -> float:
+def fmm_precision(tol: float) -> float:
     """FMM precision for a solver tolerance ``tol``.
 
-    fmm3dpy's achieved accuracy is far better than its ``eps`` (about 1e-8 at eps = 1e-4,
-    MEASURED.md), and 1e-4 is also its fastest setting here, so eps = 100 tol, capped to
-    [1e-9, 1e-4].
+    fmm3dpy's achieved accuracy is far better than its requested precision (``eps`` in its
+    own API; about 1e-8 achieved at 1e-4, measured, docs/measured.md), and 1e-4 is also its
+    fastest setting here, so the precision is 100 tol, capped to [1e-9, 1e-4].
     """
     return float(np.clip(100.0 * tol, 1e-9, 1e-4))
 
@@ -40,7 +40,7 @@ def _as_columns(charges: np.ndarray) -> tuple[np.ndarray, bool]:
     return (charges[:, None], True) if charges.ndim == 1 else (charges, False)
 
 
-def potentials(sources, charges, targets=None, *, eps: float = 1e-4, gradient: bool = False):
+def potentials(sources, charges, targets=None, *, precision: float = 1e-4, gradient: bool = False):
     """``phi(x) = sum_j q_j / |x - y_j|`` (and optionally its gradient) at targets.
 
     Parameters
@@ -48,7 +48,7 @@ def potentials(sources, charges, targets=None, *, eps: float = 1e-4, gradient: b
     sources : (N, 3) positions y_j
     charges : (N,) or (N, K) charges, K independent densities summed in one pass
     targets : (M, 3) evaluation points; None evaluates at the sources (self term skipped)
-    eps : FMM precision
+    precision : requested relative precision of the multipole sums
     gradient : also return the gradient with respect to the evaluation point
 
     Returns
@@ -60,15 +60,17 @@ def potentials(sources, charges, targets=None, *, eps: float = 1e-4, gradient: b
     at_sources = targets is None
     points = sources if at_sources else np.asarray(targets, dtype=np.float64)
     if len(sources) * len(points) <= DIRECT_LIMIT:
-        phi, grad = _direct(sources, q, points, gradient)
+        phi, grad = direct_sums(sources, q, points, gradient)
     else:
-        phi, grad = _fmm(sources, q, None if at_sources else points, eps, gradient)
+        phi, grad = multipole_sums(sources, q, None if at_sources else points, precision, gradient)
     if squeeze:
         phi, grad = phi[:, 0], (grad[:, 0] if grad is not None else None)
     return (phi, grad) if gradient else phi
 
 
-def _direct(sources, q, points, gradient):
+def direct_sums(sources, q, points, gradient):
+    """Potential (M, K) and gradient (M, K, 3) of charges ``q`` (N, K) at ``points`` by
+    direct summation in row blocks (coincident points skipped); ``gradient`` False gives None."""
     from scipy.spatial.distance import cdist
 
     k = q.shape[1]
@@ -88,11 +90,12 @@ def _direct(sources, q, points, gradient):
     return phi, grad
 
 
-def _fmm(sources, q, targets, eps, gradient):
+def multipole_sums(sources, q, targets, precision, gradient):
+    """The sums of :func:`direct_sums` by fmm3dpy; ``targets`` None evaluates at the sources."""
     fmm3dpy = _fmm3dpy()
     k = q.shape[1]
     flag = 2 if gradient else 1
-    kwargs = dict(eps=eps, sources=np.ascontiguousarray(sources.T), nd=k,
+    kwargs = dict(eps=precision, sources=np.ascontiguousarray(sources.T), nd=k,
                   charges=np.ascontiguousarray(q.T) if k > 1 else np.ascontiguousarray(q[:, 0]))
     if targets is None:
         out = fmm3dpy.lfmm3d(pg=flag, **kwargs)
@@ -106,3 +109,23 @@ def _fmm(sources, q, targets, eps, gradient):
     if gradient:
         grad = scale * np.moveaxis(np.asarray(grd).reshape(k, 3, -1), 2, 0)
     return phi, grad
+
+
+def dipole_sums(points, dipoles, *, precision: float = 1e-6) -> np.ndarray:
+    """``S_j = sum_{i != j} d_i . (y_i - y_j) / |y_i - y_j|^3`` for dipoles ``d_i`` (N, 3)
+    at ``points`` (N, 3): the flux through each dipole's patch of the field of a unit
+    charge at every other point (used for the Gauss self terms of closed interfaces).
+    Direct when small, multipole otherwise. Returns (N,)."""
+    points = np.asarray(points, dtype=np.float64)
+    dipoles = np.asarray(dipoles, dtype=np.float64)
+    if len(points) ** 2 <= DIRECT_LIMIT:
+        out = np.zeros(len(points))
+        for s in range(0, len(points), 1024):
+            diff = points[None, :, :] - points[s : s + 1024, None, :]  # [j, i] = y_i - y_j
+            r = np.linalg.norm(diff, axis=2)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                out[s : s + 1024] = np.where(r > 0, np.einsum("jid,id->ji", diff, dipoles) / r**3, 0.0).sum(axis=1)
+        return out
+    result = _fmm3dpy().lfmm3d(eps=precision, sources=np.ascontiguousarray(points.T),
+                               dipvec=np.ascontiguousarray(dipoles.T), pg=1)
+    return -4.0 * np.pi * np.asarray(result.pot)  # fmm3dpy's dipole potential is d . (x - y) / (4 pi r^3)

@@ -37,14 +37,14 @@ class LocalInverse(LinearOperator):
         from scipy.spatial import cKDTree
 
         from .kernels import near_values
-        from .operators import _kernel_arrays
+        from .nearfield import kernel_arrays
 
         panels = operator.panels
         n = len(panels)
         k = int(min(k, n))
         _, neighbours = cKDTree(panels.centroids).query(panels.centroids, k=k)
         neighbours = neighbours.reshape(n, k).astype(np.int64)
-        arrays = _kernel_arrays(panels, operator.policy)
+        arrays = kernel_arrays(panels, operator.policy)
         rows = np.empty((n, k))
         for s in range(0, n, 8192):
             nb = neighbours[s : s + 8192]

@@ -1,7 +1,7 @@
 """Solve ``A x = b`` for one or many right-hand sides with any single-layer operator.
 
-A stored matrix (``operator.matrix``) is factorised once by LU and reused for every
-column of ``b``. Any other :class:`~scipy.sparse.linalg.LinearOperator` goes to
+A stored matrix (a :class:`~tricharge.bem.operators.StoredOperator`) is factorised once
+by LU and reused for every column of ``b``. Any other :class:`~scipy.sparse.linalg.LinearOperator` goes to
 restarted GMRES with all columns in lockstep and an optional preconditioner. Non-convergence is
 never silent: it raises :class:`~tricharge.errors.SolverError` carrying the partial
 solution, unless the caller passes ``raise_on_failure=False``.
@@ -145,7 +145,7 @@ def solve_linear(operator: LinearOperator, b, *, tol: float = 1e-8, maxiter: int
 
     Parameters
     ----------
-    operator : (N, N) LinearOperator; direct LU when it has a ``matrix`` attribute
+    operator : (N, N) LinearOperator; direct LU for a StoredOperator
     b : (N,) or (N, K) right-hand sides
     tol : relative residual asked of GMRES
     maxiter : GMRES restart cycles
@@ -162,7 +162,9 @@ def solve_linear(operator: LinearOperator, b, *, tol: float = 1e-8, maxiter: int
     b = b[:, None] if b.ndim == 1 else b
     if b.shape[0] != operator.shape[0]:
         raise ValueError(f"right-hand side has {b.shape[0]} rows, the operator {operator.shape[0]}")
-    if hasattr(operator, "matrix"):
+    from .operators import StoredOperator
+
+    if isinstance(operator, StoredOperator):
         x, method, iterations = _solve_lu(operator.matrix, b), "lu", 0
     else:
         x, per_column = gmres(operator, b, tol=tol, restart=restart, maxiter=maxiter,

@@ -1,5 +1,5 @@
 """The full boundary-element system: conductors, dielectric interfaces, a ground plane
-and floating conductors (stored-matrix form).
+and floating conductors (stored and matrix-free).
 
 Unknowns are scaled total charge densities ``s_j = sigma_j / (4 pi eps0)`` (volts per
 metre) on every panel, plus the unknown potential of each floating conductor. Rows:
@@ -21,64 +21,15 @@ metre) on every panel, plus the unknown potential of each floating conductor. Ro
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
-from functools import cached_property
-
 import numpy as np
+from scipy.sparse.linalg import LinearOperator
 from scipy.spatial.distance import cdist
 
-from .operators import DENSE_POLICY, NearFieldPolicy, assemble_single_layer, near_pairs, pair_integrals
-from .panels import Panels, make_panels
-
-
-@dataclass(frozen=True, eq=False)
-class Problem:
-    """Numerical description of a model, in SI units.
-
-    panels : all N panels (conductors and interfaces)
-    conductor : (N,) int, conductor index of each panel, -1 on interface panels
-    permittivity : (N,) relative permittivity of the medium a conductor panel touches
-        (ignored on interface panels)
-    contrast : (N,) ``(eps_out - eps_in) / (eps_out + eps_in)`` on interface panels, 0 on
-        conductor panels; ``eps_out`` is on the side the normal points into
-    floating : (K,) bool per conductor
-    ground_z : height of the grounded plane (metres) or None
-    """
-
-    panels: Panels
-    conductor: np.ndarray
-    permittivity: np.ndarray
-    contrast: np.ndarray
-    floating: np.ndarray
-    ground_z: float | None = None
-    names: tuple[str, ...] = field(default_factory=tuple)
-
-    @property
-    def n_conductors(self) -> int:
-        return len(self.floating)
-
-    @property
-    def is_conductor_panel(self) -> np.ndarray:
-        return self.conductor >= 0
-
-    @cached_property
-    def floating_index(self) -> np.ndarray:
-        """Conductor indices of the floating conductors, in order."""
-        return np.flatnonzero(self.floating)
-
-    @property
-    def is_simple(self) -> bool:
-        """Conductors only, no plane, none floating: the plain single-layer problem."""
-        return bool(self.is_conductor_panel.all() and self.ground_z is None and not self.floating.any())
-
-    @cached_property
-    def images(self) -> Panels | None:
-        """The panels mirrored in the ground plane, or None without one."""
-        if self.ground_z is None:
-            return None
-        mirrored = self.panels.vertices.copy()
-        mirrored[:, 2] = 2.0 * self.ground_z - mirrored[:, 2]
-        return Panels(mirrored, self.panels.triangles)
+from .nearfield import (DENSE_POLICY, GENERAL_FAST_POLICY, NearFieldPolicy, near_correction_rows, near_pairs,
+                        pair_integrals)
+from .operators import StoredOperator, assemble_single_layer
+from .panels import Panels
+from .problem import Problem
 
 
 def assemble_normal_field(targets: np.ndarray, normals: np.ndarray, panels: Panels,
@@ -101,7 +52,6 @@ def assemble_normal_field(targets: np.ndarray, normals: np.ndarray, panels: Pane
     out[i, j] = np.einsum("pd,pd->p", pair_integrals(targets[i], panels, j, rel, policy, kind="field"), normals[i])
     return out
 
-
 def _gauss_diagonal(block: np.ndarray, rows: np.ndarray, panels: Panels) -> None:
     """Self terms from Gauss's law on every closed piece of interface.
 
@@ -110,20 +60,11 @@ def _gauss_diagonal(block: np.ndarray, rows: np.ndarray, panels: Panels) -> None
     panel j lying on S through S is exactly 2 pi A_j (half of 4 pi A_j): choose the
     diagonal entry so the discrete flux obeys that, column by column.
     """
-    from ..mesh import edge_use, connected_components
-
-    local = panels.triangles[rows]
-    pieces = connected_components(local)
     areas = panels.areas[rows]
-    for p in range(pieces.max() + 1):
-        members = np.flatnonzero(pieces == p)
-        _, count, _ = edge_use(local[members])
-        if not np.all(count == 2):
-            continue  # open piece: no flux identity
+    for members in _closed_members(panels, rows):
         sub = block[np.ix_(members, rows[members])]
         flux = areas[members] @ sub - areas[members] * np.diag(sub)
         block[members, rows[members]] = (2.0 * np.pi * areas[members] - flux) / areas[members]
-
 
 def assemble_system(problem: Problem, policy: NearFieldPolicy | None = None) -> np.ndarray:
     """The full dense system matrix, (N + F, N + F), F floating conductors."""
@@ -149,40 +90,12 @@ def assemble_system(problem: Problem, policy: NearFieldPolicy | None = None) -> 
         block[np.arange(len(rows_i)), rows_i] += 2.0 * np.pi
         matrix[rows_i, :n] = block
     for f, k in enumerate(floating):
-        members = np.flatnonzero(problem.conductor == k)
+        members = np.flatnonzero(problem.panel_conductor == k)
         matrix[members, n + f] = -1.0
         matrix[n + f, members] = problem.permittivity[members] * panels.areas[members]
     return matrix
 
-
-def problem_from_arrays(vertices, triangles, conductor, permittivity=None, contrast=None, floating=None,
-                        ground_z=None, names=()) -> Problem:
-    """Convenience constructor (tests, notebooks): arrays in metres."""
-    panels = make_panels(vertices, triangles)
-    conductor = np.asarray(conductor, dtype=np.int64)
-    n = len(panels)
-    k = int(conductor.max()) + 1 if (conductor >= 0).any() else 0
-    return Problem(panels, conductor,
-                   np.ones(n) if permittivity is None else np.asarray(permittivity, float),
-                   np.zeros(n) if contrast is None else np.asarray(contrast, float),
-                   np.zeros(k, bool) if floating is None else np.asarray(floating, bool),
-                   ground_z, tuple(names) or tuple(f"c{i + 1}" for i in range(k)))
-
-
-def near_rows(targets, panels: Panels, policy: NearFieldPolicy, kind: str, normals=None):
-    """Sparse (M, N) near corrections of the far rule for the given targets: exact minus
-    one-point values for pairs within ``policy.corrected_within`` panel sizes; for
-    ``kind="field"`` the normal component ``n_i . F``."""
-    from scipy import sparse
-
-    i, j, rel = near_pairs(targets, panels, policy.corrected_within)
-    values = pair_integrals(targets[i], panels, j, rel, policy, kind, minus_far=True)
-    if kind == "field":
-        values = np.einsum("pd,pd->p", values, normals[i])
-    return sparse.csr_matrix((values, (i, j)), shape=(len(targets), len(panels)))
-
-
-def gauss_self_terms(panels: Panels, rows: np.ndarray, near, eps: float = 1e-6):
+def gauss_self_terms(panels: Panels, rows: np.ndarray, near, precision: float = 1e-6):
     """Self terms of the normal-field operator on closed interface pieces (matrix-free
     form of :func:`_gauss_diagonal`).
 
@@ -190,40 +103,23 @@ def gauss_self_terms(panels: Panels, rows: np.ndarray, near, eps: float = 1e-6):
     ----------
     panels : all panels; ``rows`` (R,) the interface panels
     near : sparse (R, N) near corrections of the normal field for those rows
-        (:func:`near_rows`, without images)
-    eps : multipole precision
+        (:func:`~tricharge.bem.nearfield.near_correction_rows`, without images)
+    precision : multipole precision
 
     Returns
     -------
     members : indices into ``rows`` of panels on closed pieces; values : their self terms
     """
-    from ..mesh import connected_components, edge_use
-    from .fmm import _fmm3dpy
+    from .fmm import dipole_sums
 
     if not len(rows):
         return np.zeros(0, np.int64), np.zeros(0)
-    local = panels.triangles[rows]
-    pieces = connected_components(local)
     areas = panels.areas[rows]
     found, values = [], []
-    for p in range(pieces.max() + 1):
-        members = np.flatnonzero(pieces == p)
-        _, count, _ = edge_use(local[members])
-        if not np.all(count == 2):
-            continue
+    for members in _closed_members(panels, rows):
         # flux of every panel j of the piece through it: far part by dipoles A_i n_i at c_i
-        dipoles = (panels.normals[rows[members]] * areas[members, None]).T
-        sources = panels.centroids[rows[members]]
-        if len(members) ** 2 <= 4e6:
-            diff = sources[None, :, :] - sources[:, None, :]  # [j, i] = c_i - c_j
-            r = np.linalg.norm(diff, axis=2)
-            with np.errstate(divide="ignore", invalid="ignore"):
-                kernel = np.where(r > 0, np.einsum("jid,di->ji", diff, dipoles) / r**3, 0.0)
-            far = areas[members] * kernel.sum(axis=1)
-        else:
-            out = _fmm3dpy().lfmm3d(eps=eps, sources=np.ascontiguousarray(sources.T),
-                                    dipvec=np.ascontiguousarray(dipoles), pg=1)
-            far = -areas[members] * 4.0 * np.pi * out.pot  # fmm3dpy: v . (c_j - c_i) / (4 pi r^3)
+        dipoles = panels.normals[rows[members]] * areas[members, None]
+        far = areas[members] * dipole_sums(panels.centroids[rows[members]], dipoles, precision=precision)
         sub = near[members][:, rows[members]]
         flux = far + np.asarray(sub.T @ areas[members]).ravel() - areas[members] * sub.diagonal()
         found.append(members)
@@ -232,15 +128,7 @@ def gauss_self_terms(panels: Panels, rows: np.ndarray, near, eps: float = 1e-6):
         return np.zeros(0, np.int64), np.zeros(0)
     return np.concatenate(found), np.concatenate(values)
 
-
-#: Integration rules of :class:`FastSystem`: one point per panel beyond 8 panel sizes.
-#: The normal-field rows need the wider correction zone: on a sphere in a dielectric
-#: shell (4,160 panels) the capacitance differed from the dense path's by 1.9e-4 with
-#: 6 sizes and by 2e-5 with 8.
-GENERAL_FAST_POLICY = NearFieldPolicy(mid_within=8.0, far_degree=1)
-
-
-class FastSystem:
+class FastSystem(LinearOperator):
     """Matrix-free general system (same rows as :func:`assemble_system`).
 
     Far interactions: one point charge per panel (and per image panel) through the
@@ -253,13 +141,13 @@ class FastSystem:
     method = "fast"
 
     def __init__(self, problem: Problem, *, tol: float = 1e-6, policy: NearFieldPolicy | None = None):
-        from .fmm import fmm_eps
+        from .fmm import fmm_precision
 
         self.problem = problem
         self.policy = policy or GENERAL_FAST_POLICY
         if self.policy.far_degree != 1:
             raise ValueError("FastSystem puts one point charge per panel: far_degree must be 1")
-        self.eps = fmm_eps(tol)
+        self.precision = fmm_precision(tol)
         panels = problem.panels
         self.panels = panels
         n = len(panels)
@@ -267,24 +155,23 @@ class FastSystem:
         self.rows_i = np.flatnonzero(~problem.is_conductor_panel)
         c = panels.centroids
         normals = panels.normals[self.rows_i]
-        self.near_c = near_rows(c[self.rows_c], panels, self.policy, "potential")
-        self.near_i = near_rows(c[self.rows_i], panels, self.policy, "field", normals).tolil()
+        self.near_c = near_correction_rows(c[self.rows_c], panels, self.policy, "potential")
+        self.near_i = near_correction_rows(c[self.rows_i], panels, self.policy, "field", normals).tolil()
         self._add_gauss_diagonal()
         self.near_i = self.near_i.tocsr()
         if problem.images is not None:
-            self.near_c = self.near_c - near_rows(c[self.rows_c], problem.images, self.policy, "potential")
-            self.near_i = self.near_i - near_rows(c[self.rows_i], problem.images, self.policy, "field", normals)
+            self.near_c = self.near_c - near_correction_rows(c[self.rows_c], problem.images, self.policy, "potential")
+            self.near_i = self.near_i - near_correction_rows(c[self.rows_i], problem.images, self.policy, "field", normals)
         self.n, self.floating = n, problem.floating_index
         size = n + len(self.floating)
-        self.shape = (size, size)
-        self.dtype = np.dtype(np.float64)
+        super().__init__(dtype=np.float64, shape=(size, size))
 
     def _add_gauss_diagonal(self) -> None:
-        members, values = gauss_self_terms(self.panels, self.rows_i, self.near_i.tocsr(), self.eps)
+        members, values = gauss_self_terms(self.panels, self.rows_i, self.near_i.tocsr(), self.precision)
         if len(members):
             self.near_i[members, self.rows_i[members]] = values
 
-    def matmat(self, x):
+    def _matmat(self, x):
         from .fmm import potentials
 
         x = np.asarray(x, dtype=np.float64)
@@ -298,9 +185,9 @@ class FastSystem:
             charges = np.vstack([charges, -charges])
         need_grad = len(self.rows_i) > 0
         if need_grad:
-            phi, grad = potentials(points, charges, eps=self.eps, gradient=True)
+            phi, grad = potentials(points, charges, precision=self.precision, gradient=True)
         else:
-            phi, grad = potentials(points, charges, eps=self.eps), None
+            phi, grad = potentials(points, charges, precision=self.precision), None
         out = np.zeros_like(x)
         out[self.rows_c] = phi[self.rows_c] + self.near_c @ s
         if need_grad:
@@ -308,10 +195,30 @@ class FastSystem:
             lam = problem.contrast[self.rows_i, None]
             out[self.rows_i] = 2.0 * np.pi * s[self.rows_i] + lam * (normal_field + self.near_i @ s)
         for f, k in enumerate(self.floating):
-            members = problem.conductor == k
+            members = problem.panel_conductor == k
             out[:n][members] -= x[n + f]
             out[n + f] = (problem.permittivity[members] * panels.areas[members]) @ s[members]
         return out
 
-    def matvec(self, x):
-        return self.matmat(np.asarray(x).reshape(-1, 1))[:, 0]
+    def _matvec(self, x):
+        return self._matmat(np.asarray(x).reshape(-1, 1))[:, 0]
+
+
+class StoredSystem(StoredOperator):
+    """The assembled general system (:func:`assemble_system`), solved by LU."""
+
+    def __init__(self, problem: Problem, policy: NearFieldPolicy | None = None):
+        self.problem = problem
+        self.matrix = assemble_system(problem, policy)
+        super().__init__()
+
+
+def _closed_members(panels: Panels, rows: np.ndarray):
+    """Indices into ``rows`` of the panels of every closed piece those rows form."""
+    from ..mesh import closed_pieces
+
+    if not len(rows):
+        return
+    piece, closed = closed_pieces(panels.triangles[rows])
+    for p in np.flatnonzero(closed):
+        yield np.flatnonzero(piece == p)

@@ -77,7 +77,7 @@ def stage_solve(stage, targets: dict, result, full, model, origin: dict, *, form
     :class:`~tricharge.io.files.Target` or None. ``result`` is the (possibly reduced)
     result the matrix files hold, ``full`` the unreduced one the VTU's per-panel data
     come from. Returns notes for the terminal."""
-    from ..bem.capacitance import EPS0
+    from ..bem.results import EPS0
     from .export import matrix_csv, result_json, write_npz, write_vtu
 
     notes = []
@@ -98,10 +98,10 @@ def stage_solve(stage, targets: dict, result, full, model, origin: dict, *, form
         path, conductors=np.array(result.conductors), maxwell=result.capacitance, mutual=result.mutual,
         reference=np.array(result.reference)))
     if targets.get("vtu") is not None:
-        data = {"conductor": full.labels, "area_m2": full.panel_areas}
+        data = {"conductor": full.panel_conductor, "area_m2": full.panel_areas}
         for k, name in enumerate(full.conductors):
             data[f"sigma_C_per_m2_{name}_at_1V"] = full.sigma[:, k]
-            data[f"E_normal_V_per_m_{name}_at_1V"] = np.where(full.labels >= 0, full.sigma[:, k] / EPS0, np.nan)
+            data[f"E_normal_V_per_m_{name}_at_1V"] = np.where(full.panel_conductor >= 0, full.sigma[:, k] / EPS0, np.nan)
         stage.file(targets["vtu"], lambda path: write_vtu(path, model.vertices, model.triangles, data))
     return notes
 
@@ -160,3 +160,25 @@ def stage_samples(stage, targets: dict, model, requests, values) -> list[dict]:
     stage.text(targets.get("samples"), samples_csv(kinds, points, potentials, fields, model.unit, scale))
     return [{"kind": k, "point_m": p.tolist(), "potential_V": float(v), "field_V_per_m": e.tolist()}
             for k, p, v, e in zip(kinds, points, potentials, fields)]
+
+
+def stage_field(stage, targets: dict, result, model, requests, values, rechecked, origin: dict,
+                line_chart: bytes | None = None) -> list[str]:
+    """Stage the files of a field run: ``targets`` maps json, samples, vtk, vtu, line_png
+    to a Target or None; ``requests`` and ``values`` as for :func:`stage_samples`;
+    ``rechecked`` the peak refinement rows; ``line_chart`` the PNG of the line chart.
+    Returns notes for the terminal."""
+    from ..names import printable
+    from ..units import metres_per
+    from .export import write_vtu
+
+    samples = stage_samples(stage, targets, model, requests, values) if requests else []
+    stage.bytes(targets.get("line_png"), line_chart)
+    notes = []
+    if targets.get("vtu") is not None:
+        stage.file(targets["vtu"], lambda path: write_vtu(path, model.vertices, model.triangles, field_vtu_data(result),
+                                                          {"metres_per_unit": metres_per(model.unit)}))
+        notes.append(f"part ids in {targets['vtu'].shown}: "
+                     + ", ".join(f"{k} {printable(p)}" for k, p in enumerate(result.parts)))
+    stage.text(targets.get("json"), field_json(result, samples, rechecked, origin))
+    return notes

@@ -16,9 +16,11 @@ import numpy as np
 
 from ..errors import TrichargeError
 from ..names import printable, spice_comment
+from ..units import SI_PREFIXES
 
-#: SPICE scale suffixes (case-insensitive in SPICE; "meg" is mega, "m" is milli).
-_SUFFIXES = [(1e-15, "f"), (1e-12, "p"), (1e-9, "n"), (1e-6, "u"), (1e-3, "m")]
+#: The SI prefixes SPICE reads as scale suffixes for capacitances (case-insensitive in
+#: SPICE, where "m" is milli and "meg" mega).
+SUFFIXES = ("f", "p", "n", "u", "m")
 
 #: Without a tolerance from the solve, negative capacitances smaller than this fraction
 #: of the largest one count as numerical noise (become 0 with a note); larger ones are
@@ -33,7 +35,8 @@ def spice_value(farads: float, digits: int = 9) -> str:
     ('23f', '1.5n', '4e-19')
     """
     magnitude = abs(farads)
-    for scale, suffix in reversed(_SUFFIXES):
+    for suffix in reversed(SUFFIXES):
+        scale = SI_PREFIXES[suffix]
         if magnitude >= scale * (1 - 1e-9):
             return f"{farads / scale:.{digits}g}{suffix}"
     return f"{farads:.{digits}g}"

@@ -55,7 +55,7 @@ def report_html(*, title: str, summary: list[str], model_rows: list, result, fie
     result : capacitance Result; field : FieldResult or None (hot spots)
     images : [(caption, png bytes)]; cautions : text; provenance : key -> value
     """
-    from ..bem.capacitance import mutual_error
+    from ..bem.results import mutual_error
 
     errors = result.error_estimate
     estimated = " ± estimated error" if errors is not None else ""
@@ -95,7 +95,7 @@ def report_html(*, title: str, summary: list[str], model_rows: list, result, fie
 def build_report(model, result, field=None, *, title: str, provenance: dict) -> str:
     """The whole page for a model, its capacitance result and (optionally) a field
     solution: the model table, charts and pictures drawn here, provenance."""
-    from ..io.text import CAUTIONS
+    from ..terminal import CAUTIONS
     from . import field_picture
     from .plots import convergence_chart, matrix_heatmap
     from .render import png_bytes

@@ -1,154 +1,12 @@
-"""Triangle meshes of simple bodies, built from arrays (no files).
-
-Used by the reference tests, the benchmarks and the demo generator, and handy in a
-notebook. Every function returns ``(vertices (n, 3) metres, triangles (m, 3) int64)``
-with outward normals (right-hand rule); open surfaces (disk, plate) face +z.
-"""
+"""Bodies swept from curves: surfaces of revolution from an (r, z) profile (rods, capsules,
+rounded disks, tori) and tubes along a 3D path, meshed to a target panel size."""
 
 from __future__ import annotations
 
 import numpy as np
 
-from .errors import OptionError
-from .mesh import merge_vertices
+from ..errors import OptionError
 
-
-def _icosahedron():
-    p = (1.0 + np.sqrt(5.0)) / 2.0
-    v = np.array([[-1, p, 0], [1, p, 0], [-1, -p, 0], [1, -p, 0], [0, -1, p], [0, 1, p],
-                  [0, -1, -p], [0, 1, -p], [p, 0, -1], [p, 0, 1], [-p, 0, -1], [-p, 0, 1]], float)
-    f = np.array([[0, 11, 5], [0, 5, 1], [0, 1, 7], [0, 7, 10], [0, 10, 11], [1, 5, 9], [5, 11, 4],
-                  [11, 10, 2], [10, 7, 6], [7, 1, 8], [3, 9, 4], [3, 4, 2], [3, 2, 6], [3, 6, 8],
-                  [3, 8, 9], [4, 9, 5], [2, 4, 11], [6, 2, 10], [8, 6, 7], [9, 8, 1]])
-    return v / np.linalg.norm(v, axis=1, keepdims=True), f
-
-
-def _subdivide_triangle(a, b, c, n):
-    """Split triangle abc into n*n triangles; returns (points, triangles) local to it."""
-    index = {}
-    points = []
-    for i in range(n + 1):
-        for j in range(n + 1 - i):
-            index[i, j] = len(points)
-            points.append(a + (b - a) * (i / n) + (c - a) * (j / n))
-    tris = []
-    for i in range(n):
-        for j in range(n - i):
-            tris.append((index[i, j], index[i + 1, j], index[i, j + 1]))
-            if j < n - i - 1:
-                tris.append((index[i + 1, j], index[i + 1, j + 1], index[i, j + 1]))
-    return np.array(points), np.array(tris)
-
-
-def _join(parts, tolerance):
-    verts, tris, offset = [], [], 0
-    for v, t in parts:
-        verts.append(v)
-        tris.append(t + offset)
-        offset += len(v)
-    return merge_vertices(np.vstack(verts), np.vstack(tris), tolerance)
-
-
-def sphere(radius: float = 1.0, frequency: int = 8, center=(0.0, 0.0, 0.0)):
-    """Geodesic sphere: an icosahedron with each face split into ``frequency**2`` triangles.
-
-    Panel count is ``20 * frequency**2`` (1280 at 8, 5120 at 16). Vertices lie on the sphere.
-    """
-    v0, f0 = _icosahedron()
-    parts = [_subdivide_triangle(*v0[face], frequency) for face in f0]
-    v, t = _join(parts, 1e-9)
-    v = v / np.linalg.norm(v, axis=1, keepdims=True)
-    return v * radius + np.asarray(center, float), t
-
-
-def _spacing(n: int, graded: bool) -> np.ndarray:
-    """n+1 nodes on [0, 1]; graded puts them closer near both ends (cosine law)."""
-    s = np.linspace(0.0, 1.0, n + 1)
-    return 0.5 * (1.0 - np.cos(np.pi * s)) if graded else s
-
-
-def _grid_face(origin, e1, e2, n1, n2, graded):
-    """Triangulated rectangle origin + s*e1 + t*e2; normal e1 x e2."""
-    s, t = _spacing(n1, graded), _spacing(n2, graded)
-    ss, tt = np.meshgrid(s, t, indexing="ij")
-    points = origin + ss.reshape(-1, 1) * e1 + tt.reshape(-1, 1) * e2
-    k = np.arange((n1 + 1) * (n2 + 1)).reshape(n1 + 1, n2 + 1)
-    a, b, c, d = k[:-1, :-1].ravel(), k[1:, :-1].ravel(), k[1:, 1:].ravel(), k[:-1, 1:].ravel()
-    tris = np.concatenate([np.stack([a, b, c], 1), np.stack([a, c, d], 1)])
-    return points, tris
-
-
-def box(size=(1.0, 1.0, 1.0), divisions=(8, 8, 8), center=(0.0, 0.0, 0.0), graded: bool = False):
-    """Closed rectangular box with a structured grid on each face.
-
-    Parameters
-    ----------
-    size : (3,) edge lengths, metres
-    divisions : (3,) intervals along x, y, z; panels = 4*(nx*ny + ny*nz + nz*nx)
-    graded : refine towards edges and corners (cosine spacing), where charge crowds
-    """
-    lx, ly, lz = map(float, size)
-    nx, ny, nz = map(int, divisions)
-    lo = np.asarray(center, float) - 0.5 * np.array([lx, ly, lz])
-    ex, ey, ez = np.diag([lx, ly, lz])
-    faces = [
-        (lo, ey, ex, ny, nx),                 # z = lo, normal -z
-        (lo + ez, ex, ey, nx, ny),            # z = hi, normal +z
-        (lo, ex, ez, nx, nz),                 # y = lo, normal -y
-        (lo + ey, ez, ex, nz, nx),            # y = hi, normal +y
-        (lo, ez, ey, nz, ny),                 # x = lo, normal -x
-        (lo + ex, ey, ez, ny, nz),            # x = hi, normal +x
-    ]
-    parts = [_grid_face(o, a, b, n1, n2, graded) for o, a, b, n1, n2 in faces]
-    return _join(parts, 1e-9 * max(lx, ly, lz))
-
-
-def cube(side: float = 1.0, divisions: int = 8, graded: bool = False, center=(0.0, 0.0, 0.0)):
-    """Cube of edge ``side`` with ``divisions`` intervals per edge (12*divisions**2 panels)."""
-    return box((side,) * 3, (divisions,) * 3, center=center, graded=graded)
-
-
-def plate(size=(1.0, 1.0), divisions=(8, 8), center=(0.0, 0.0, 0.0), graded: bool = False):
-    """Zero-thickness rectangular plate in the plane z = center[2], normal +z."""
-    lx, ly = map(float, size)
-    origin = np.asarray(center, float) - np.array([lx / 2, ly / 2, 0.0])
-    v, t = _grid_face(origin, np.array([lx, 0, 0.0]), np.array([0, ly, 0.0]), *divisions, graded)
-    return v, t.astype(np.int64)
-
-
-def disk(radius: float = 1.0, rings: int = 10, center=(0.0, 0.0, 0.0)):
-    """Zero-thickness circular disk in the plane z = center[2], normal +z.
-
-    Ring k (k = 1..rings) carries 6k vertices at radius k/rings of the disk's, so panels
-    are near-equilateral and number ``6 * rings**2``.
-    """
-    points = [np.zeros(2)]
-    for k in range(1, rings + 1):
-        angle = 2.0 * np.pi * np.arange(6 * k) / (6 * k)
-        points.extend(np.stack([np.cos(angle), np.sin(angle)], 1) * (k / rings))
-    points = np.array(points)
-    from scipy.spatial import Delaunay
-
-    t = Delaunay(points).simplices.astype(np.int64)
-    a, b, c = (points[t[:, i]] for i in range(3))
-    flip = (b[:, 0] - a[:, 0]) * (c[:, 1] - a[:, 1]) - (b[:, 1] - a[:, 1]) * (c[:, 0] - a[:, 0]) < 0
-    t[flip] = t[flip][:, [0, 2, 1]]
-    v = np.column_stack([points * radius, np.zeros(len(points))]) + np.asarray(center, float)
-    return v, t
-
-
-def combine(*meshes):
-    """Concatenate meshes; returns ``(vertices, triangles, labels)`` with labels 0, 1, ... per input."""
-    verts, tris, labels, offset = [], [], [], 0
-    for k, (v, t) in enumerate(meshes):
-        verts.append(np.asarray(v, float))
-        tris.append(np.asarray(t, np.int64) + offset)
-        labels.append(np.full(len(t), k, dtype=np.int64))
-        offset += len(v)
-    return np.vstack(verts), np.vstack(tris), np.concatenate(labels)
-
-
-# --------------------------------------------------------------------------------------
 # Bodies built from stacked rings: surfaces of revolution and tubes along a path.
 #
 # A "ring stack" is a sequence of rings; ring k holds ``sizes[k]`` vertices at angles
@@ -158,6 +16,7 @@ def combine(*meshes):
 # (direction of increasing angle) x (direction from ring k to ring k + 1).
 
 _SQRT3_2 = np.sqrt(3.0) / 2.0
+
 _CORNER_TURN = np.deg2rad(30.0)  # a polyline vertex turning more than this is kept exactly
 
 
@@ -326,7 +185,7 @@ def revolve(profile_rz, panel_size: float, center=(0.0, 0.0, 0.0)):
     return points + np.asarray(center, float), _stitch_rings(sizes, offsets, closed)
 
 
-def _arc_rz(center_rz, radius: float, start: float, stop: float) -> np.ndarray:
+def arc_rz(center_rz, radius: float, start: float, stop: float) -> np.ndarray:
     """Dense points (k, 2) of a circular arc in the (r, z) plane, angles in radians from +r."""
     angle = np.linspace(start, stop, max(2, int(np.ceil(abs(stop - start) / 1e-3)) + 1))
     return np.asarray(center_rz, float) + radius * np.column_stack([np.cos(angle), np.sin(angle)])
@@ -343,7 +202,7 @@ def torus(major_radius: float, minor_radius: float, panel_size: float, center=(0
     if small >= big:
         raise OptionError(
             f"torus minor_radius {small:g} must be below major_radius {big:g}; the ring would self-intersect")
-    loop = _arc_rz((big, 0.0), small, 0.0, 2.0 * np.pi)
+    loop = arc_rz((big, 0.0), small, 0.0, 2.0 * np.pi)
     loop[-1] = loop[0]
     return revolve(loop, panel_size, center)
 
@@ -369,8 +228,8 @@ def rod(radius: float, length: float, panel_size: float, center=(0.0, 0.0, 0.0),
         raise OptionError(
             f"rod length {total:g} is shorter than its rounded ends ({a * (low + high):g}); make it longer")
     z0, z1 = -total / 2, total / 2
-    bottom = _arc_rz((0.0, z0 + a), a, -np.pi / 2, 0.0) if low else np.array([[0.0, z0], [a, z0]])
-    top = _arc_rz((0.0, z1 - a), a, 0.0, np.pi / 2) if high else np.array([[a, z1], [0.0, z1]])
+    bottom = arc_rz((0.0, z0 + a), a, -np.pi / 2, 0.0) if low else np.array([[0.0, z0], [a, z0]])
+    top = arc_rz((0.0, z1 - a), a, 0.0, np.pi / 2) if high else np.array([[a, z1], [0.0, z1]])
     return revolve(np.vstack([bottom, top]), panel_size, center)
 
 
@@ -399,7 +258,7 @@ def rounded_disk(radius: float, thickness: float, panel_size: float, center=(0.0
     big, t = _positive(radius, "radius"), _positive(thickness, "thickness")
     if t > 2.0 * big:
         raise OptionError(f"rounded_disk thickness {t:g} exceeds its diameter {2 * big:g}; make it thinner")
-    rim = _arc_rz((big - t / 2, 0.0), t / 2, -np.pi / 2, np.pi / 2)
+    rim = arc_rz((big - t / 2, 0.0), t / 2, -np.pi / 2, np.pi / 2)
     return revolve(np.vstack([[0.0, -t / 2], rim, [0.0, t / 2]]), panel_size, center)
 
 
@@ -422,7 +281,7 @@ def arc_path(start, end, height: float, n: int = 64) -> np.ndarray:
     return points
 
 
-def _rotation_minimising_frames(points: np.ndarray, tangents: np.ndarray) -> np.ndarray:
+def rotation_minimising_frames(points: np.ndarray, tangents: np.ndarray) -> np.ndarray:
     """Unit normals (k, 3), perpendicular to ``tangents`` (k, 3), that twist as little as possible.
 
     Double-reflection method of Wang, Juettler, Zheng and Liu, "Computation of rotation
@@ -474,7 +333,7 @@ def tube(path, radius: float, panel_size: float):
     p = _resample(p, spacing, closed=False)
     tangents = np.gradient(p, axis=0)
     tangents /= np.linalg.norm(tangents, axis=1, keepdims=True)
-    u = _rotation_minimising_frames(p, tangents)
+    u = rotation_minimising_frames(p, tangents)
     v = np.cross(tangents, u)
     n_cap = max(1, int(np.rint(a / spacing)))
     cap_radii = a * np.arange(n_cap) / n_cap                      # 0 (the centre) .. inner rings

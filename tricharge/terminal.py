@@ -1,4 +1,5 @@
-"""Plain-text tables of results for the terminal.
+"""Everything the terminal shows: tables of results, the inspect summary, the field
+report and its cautions, warnings, and progress bars.
 
 Every name that came from a user's file goes through :func:`tricharge.names.printable`
 before it is placed in a line, so control characters and escape sequences are shown,
@@ -7,10 +8,13 @@ never sent to the terminal.
 
 from __future__ import annotations
 
+import sys
+
+import click
 import numpy as np
 
-from ..names import printable
-from ..units import format_eng, prefix_for
+from .names import printable
+from .units import format_eng, prefix_for
 
 
 def matrix_table(names, matrix, unit: str = "F", digits: int = 5, errors=None) -> str:
@@ -99,7 +103,7 @@ def result_report(result, *, source: str, unit: str, version: str) -> str:
         closing = ("Discretisation error not estimated (single solve): add --levels 3 or --accuracy 0.5% for "
                    "value ± estimate.")
     else:
-        from ..bem.capacitance import mutual_error
+        from .bem.results import mutual_error
 
         mutual = mutual_list(names, result.mutual, reference, mutual_error(errors))
         closing = study_report(result.study)
@@ -115,7 +119,7 @@ def result_report(result, *, source: str, unit: str, version: str) -> str:
 
 def study_report(study: dict) -> str:
     """What a refinement study did and how far to trust its estimates (``Result.study``)."""
-    from ..bem.convergence import ESTIMATE_METHOD, NOT_ASYMPTOTIC, TWO_LEVELS
+    from .bem.convergence import ESTIMATE_METHOD, NOT_ASYMPTOTIC, TWO_LEVELS
 
     status = np.array(study["status"], dtype=object)
     order = np.array([[np.nan if p is None else p for p in row] for row in study["observed_order"]])
@@ -150,7 +154,7 @@ def _table(rows: list[list[str]], right: set[int]) -> list[str]:
 
 def survey_report(model, *, version: str) -> str:
     """The text ``inspect`` prints: parts, media, notes, warnings and errors."""
-    from ..units import metres_per
+    from .units import metres_per
 
     scale = metres_per(model.unit)
     u = model.unit
@@ -199,7 +203,7 @@ def _kv_per_mm(value: float) -> str:
 
 def field_report(result, model, *, source: str, version: str) -> str:
     """The text the ``field`` command prints."""
-    from ..units import format_eng, metres_per
+    from .units import format_eng, metres_per
 
     scale, unit = metres_per(model.unit), model.unit
     lines = [f"tricharge {version}: {printable(source)} (unit {unit}), {plural(len(result.conductors), 'conductor')}, "
@@ -245,3 +249,45 @@ def refinement_report(rechecked) -> str:
                    else "settled to within 10 %")
         lines.append(f"  {printable(part)}: {_kv_per_mm(before)} -> {_kv_per_mm(after)} ({change:+.1%}), {verdict}")
     return "\n".join(lines)
+
+
+class Terminal:
+    """Where the human-readable report goes: stdout, or stderr when an output is written
+    to standard output; nothing when quiet."""
+
+    def __init__(self, quiet: bool = False, to_stderr: bool = False):
+        self.quiet, self.to_stderr = quiet, to_stderr
+
+    def say(self, text: str) -> None:
+        if not self.quiet:
+            click.echo(text, err=self.to_stderr)
+
+    @staticmethod
+    def warn(text: str) -> None:
+        click.echo(f"tricharge: warning: {printable(text)}", err=True)
+
+class Progress:
+    """Progress bars on stderr for long work; silent when quiet or not a terminal."""
+
+    def __init__(self, quiet: bool):
+        self.enabled = not quiet and sys.stderr.isatty()
+        self.bar, self.stage = None, None
+
+    def __call__(self, stage: str, done: int, total: int) -> None:
+        if not self.enabled:
+            return
+        from tqdm import tqdm
+
+        if stage != self.stage:
+            self.close()
+            self.stage = stage
+            kind = stage.rsplit(": ", 1)[-1]  # refinement studies prefix "level 2/3: "
+            unit = "it" if kind == "iterations" else "panels" if kind == "near field" else "step"
+            self.bar = tqdm(total=None if kind == "iterations" else total, desc=stage, unit=unit, leave=False,
+                            file=sys.stderr)
+        self.bar.update(done - self.bar.n)
+
+    def close(self) -> None:
+        if self.bar is not None:
+            self.bar.close()
+            self.bar = None
