@@ -199,7 +199,7 @@ def test_field_samples_probe_line_and_section(tmp_path, capsys):
     root = ElementTree.parse(image).getroot()
     assert root.find("ImageData").get("WholeExtent") == "0 20 0 0 0 20"
     arrays = {a.get("Name"): len(a.text.split()) for a in root.iter("DataArray")}
-    assert arrays == {"potential_V": 441, "E_V_per_m": 3 * 441, "E_magnitude_V_per_m": 441}
+    assert arrays == {"potential_V": 441, "E_V_per_m": 3 * 441, "E_magnitude_V_per_m": 441, "where": 441}
 
 
 @pytest.mark.parametrize("args, message", [

@@ -8,7 +8,7 @@ import numpy as np
 
 from .bem.capacitance import solve_capacitance, solve_voltages
 from .bem.factory import memory_estimate, resolve_method
-from .bem.fields import field_at, hot_spots, potential_at, surface_field
+from .bem.fields import hot_spots, potential_and_field, surface_field
 from .bem.panels import make_panels
 from .bem.problem import Problem
 from .bem.results import Result
@@ -152,19 +152,27 @@ class FieldResult:
     problem: Problem
     sigma: np.ndarray
 
-    def sample(self, points) -> tuple[np.ndarray, np.ndarray]:
-        """Potential (M,) V and field (M, 3) V/m at ``points`` (M, 3) metres, anywhere:
-        accurate within a panel size of the surface (closed-form near terms). Points are
-        evaluated :data:`SAMPLE_CHUNK` at a time, so memory does not grow with M beyond
-        the results."""
+    def sample(self, points):
+        """Potential, field and placement at ``points`` (M, 3) metres, anywhere: inside a
+        conductor (its potential, no field), near a surface (the field extrapolated from
+        where it is accurate), or free; see :mod:`tricharge.bem.evaluation`. Returns
+        :class:`~tricharge.bem.evaluation.Samples`. Points are taken :data:`SAMPLE_CHUNK`
+        at a time, so memory does not grow with M beyond the results."""
+        from .bem.evaluation import Samples, sample_field, surface_values
+
         points = np.atleast_2d(np.asarray(points, dtype=np.float64))
-        phi, field = np.empty(len(points)), np.empty((len(points), 3))
-        kwargs = dict(images=self.problem.images)
-        for s in range(0, len(points), SAMPLE_CHUNK):
-            chunk = points[s : s + SAMPLE_CHUNK]
-            phi[s : s + SAMPLE_CHUNK] = potential_at(chunk, self.problem.panels, self.sigma, **kwargs)
-            field[s : s + SAMPLE_CHUNK] = field_at(chunk, self.problem.panels, self.sigma, **kwargs)
-        return phi, field
+        panels, images = self.problem.panels, self.problem.images
+        values = surface_values(self.problem, self.surface, self.groups)
+
+        def direct(q):
+            return potential_and_field(q, panels, self.sigma, images=images)
+
+        parts = [sample_field(points[s : s + SAMPLE_CHUNK], self.problem, self.sigma, self.potentials, direct, values)
+                 for s in range(0, len(points), SAMPLE_CHUNK)]
+        if len(parts) == 1:
+            return parts[0]
+        return Samples(*(np.concatenate([getattr(p, name) for p in parts]) for name in
+                         ("potential", "field", "where", "distance", "panel_size", "conductor")))
 
     def __repr__(self) -> str:
         peak = max((s.field for s in self.spots), default=0.0)

@@ -291,3 +291,41 @@ class Progress:
         if self.bar is not None:
             self.bar.close()
             self.bar = None
+
+
+def placement_notes(requests, values, model) -> list[str]:
+    """Lines saying where sample points lie when that changes how their values were
+    obtained: every probe that is not free, and counts for lines and sections."""
+    from .bem.evaluation import BELOW_PLANE, INSIDE, NARROW_GAP, NEAR
+    from .units import metres_per
+
+    scale, unit, names = metres_per(model.unit), model.unit, model.conductor_names
+    notes, numbers = [], {"line": 0, "section": 0}
+    for (kind, points, _), sample in zip(requests, values):
+        if kind == "probe":
+            for k, (point, where) in enumerate(zip(points, sample.where), start=1):
+                at = ", ".join(f"{x / scale:.4g}" for x in point)
+                if where == INSIDE:
+                    text = (f"inside conductor {printable(names[sample.conductor[k - 1]])}: its potential, "
+                            "no field")
+                elif where == BELOW_PLANE:
+                    text = "below the ground plane: potential 0, no field"
+                elif where in (NEAR, NARROW_GAP):
+                    d, h = sample.distance[k - 1], sample.panel_size[k - 1]
+                    text = (f"{d / scale:.3g} {unit} from a surface ({d / h:.2g} panel sizes): " +
+                            ("field extrapolated from 0.5-1.5 panel sizes out" if where == NEAR else
+                             "in a gap narrower than the mesh resolves, evaluated directly; refine the mesh there"))
+                else:
+                    continue
+                notes.append(f"probe {k} ({at} {unit}) lies {text}")
+            continue
+        numbers[kind] += 1
+        counts = [(int(np.isin(sample.where, (INSIDE, BELOW_PLANE)).sum()), "inside conductors or below the plane "
+                   "(potential of the conductor, no field; a gap in charts)"),
+                  (int((sample.where == NEAR).sum()), "near a surface (field extrapolated from 0.5-1.5 panel sizes "
+                   "out)"),
+                  (int((sample.where == NARROW_GAP).sum()), "in gaps narrower than the mesh resolves")]
+        said = [f"{n:,} {what}" for n, what in counts if n]
+        if said:
+            notes.append(f"{kind} {numbers[kind]}: of {len(points):,} points, " + "; ".join(said))
+    return notes

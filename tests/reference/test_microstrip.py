@@ -17,7 +17,7 @@ from tricharge.bem.capacitance import solve_capacitance
 from tricharge.bem.results import EPS0
 from tricharge.bem.problem import problem_from_arrays
 from tricharge.mesh import merge_vertices
-from tricharge.shapes import _grid_face
+from tricharge.shapes import grid_face
 
 
 def hammerstad_jensen(u: float, eps_r: float) -> float:
@@ -50,23 +50,23 @@ def microstrip(length, eps_r, h=1.0, w=1.0, t=0.02, slab=10.0, step=0.25, edge_c
                (w / 2, slab / 2, n_side)]
     parts = []  # (vertices, triangles, role): role 0 strip in slab, 1 strip in air, 2 interface
     for k, (x0, x1, n) in enumerate(x_bands):
-        v, tri = _grid_face(np.array([x0, 0.0, h]), (x1 - x0) * ex, length * ey, n, n_y, True)
+        v, tri = grid_face(np.array([x0, 0.0, h]), (x1 - x0) * ex, length * ey, n, n_y, True)
         parts.append((v, tri[:, ::-1] if k == 1 else tri, 0 if k == 1 else 2))  # strip bottom faces down
-        v, tri = _grid_face(np.array([x0, 0.0, 0.0]), (x1 - x0) * ex, h * ez, n, n_z, False)  # end y = 0
+        v, tri = grid_face(np.array([x0, 0.0, 0.0]), (x1 - x0) * ex, h * ez, n, n_z, False)  # end y = 0
         parts.append((v, tri, 2))
-        v, tri = _grid_face(np.array([x0, length, 0.0]), h * ez, (x1 - x0) * ex, n_z, n, False)  # end y = L
+        v, tri = grid_face(np.array([x0, length, 0.0]), h * ez, (x1 - x0) * ex, n_z, n, False)  # end y = L
         parts.append((v, tri, 2))
         if k == 1:
             for origin, a, b, na, nb in (((x0, 0, h + t), (x1 - x0) * ex, length * ey, n, n_y),
                                          ((x0, 0, h), (x1 - x0) * ex, t * ez, n, 1),
                                          ((x0, length, h), t * ez, (x1 - x0) * ex, 1, n)):
-                v, tri = _grid_face(np.array(origin, float), a, b, na, nb, origin[2] == h + t)
+                v, tri = grid_face(np.array(origin, float), a, b, na, nb, origin[2] == h + t)
                 parts.append((v, tri, 1))
     for origin, a, b, na, nb in (((-slab / 2, 0, 0), h * ez, length * ey, n_z, n_y),
                                  ((slab / 2, 0, 0), length * ey, h * ez, n_y, n_z),
                                  ((-w / 2, 0, h), t * ez, length * ey, 1, n_y),
                                  ((w / 2, 0, h), length * ey, t * ez, n_y, 1)):
-        v, tri = _grid_face(np.array(origin, float), a, b, na, nb, False)
+        v, tri = grid_face(np.array(origin, float), a, b, na, nb, False)
         parts.append((v, tri, 2 if origin[2] == 0 else 1))
     vertices, triangles, roles, offset = [], [], [], 0
     for v, tri, role in parts:

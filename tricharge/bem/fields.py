@@ -24,35 +24,37 @@ from .system import gauss_self_terms
 FIELD_FMM_PRECISION = 1e-7
 
 
-def _far_sum(points: np.ndarray, sources: np.ndarray, charges: np.ndarray, kind: str) -> np.ndarray:
-    """Potential (M,) or field (M, 3) of point charges, geometric units; coincident points
-    skipped. Direct sums for small problems, the multipole method for large ones."""
-    if kind == "potential":
-        return potentials(sources, charges, points, precision=FIELD_FMM_PRECISION)
-    return -potentials(sources, charges, points, precision=FIELD_FMM_PRECISION, gradient=True)[1]
-
-
-def _evaluate(points, panels, sigma, policy, kind):
-    """Far rule for every pair, then exact-minus-far corrections for near pairs."""
+def _evaluate(points, panels, sigma, policy, kinds):
+    """Far rule for every pair (one direct or multipole sum for all ``kinds``), then
+    exact-minus-far corrections for near pairs. Returns one array per kind ("potential":
+    (M,), "field": (M, 3)), geometric units."""
     points = np.atleast_2d(np.asarray(points, dtype=np.float64))
     sigma = np.asarray(sigma, dtype=np.float64)
     policy = policy or NearFieldPolicy()
     qp, qw = panels.quadrature(policy.far_degree)
-    total = _far_sum(points, qp.reshape(-1, 3), (sigma[:, None] * qw).ravel(), kind)
+    phi, grad = potentials(qp.reshape(-1, 3), (sigma[:, None] * qw).ravel(), points, precision=FIELD_FMM_PRECISION,
+                           gradient=True)
+    totals = {"potential": phi, "field": -grad}
     i, j, rel = near_pairs(points, panels, policy.corrected_within)
-    if len(i):
+    for kind in kinds if len(i) else ():
         far = far_rule_pairs(points[i], panels, j, policy, kind)
         exact = pair_integrals(points[i], panels, j, rel, policy, kind)
         weight = sigma[j] if kind == "potential" else sigma[j, None]
-        np.add.at(total, i, weight * (exact - far))
-    return total
+        np.add.at(totals[kind], i, weight * (exact - far))
+    return tuple(totals[kind] for kind in kinds)
 
 
-def _with_images(points, panels, sigma, policy, kind, images):
-    total = _evaluate(points, panels, sigma, policy, kind)
+def _with_images(points, panels, sigma, policy, kinds, images):
+    totals = _evaluate(points, panels, sigma, policy, kinds)
     if images is not None:  # the plane's images carry the opposite charge
-        total = total - _evaluate(points, images, sigma, policy, kind)
-    return total
+        totals = tuple(a - b for a, b in zip(totals, _evaluate(points, images, sigma, policy, kinds)))
+    return tuple(t / FOUR_PI_EPS0 for t in totals)
+
+
+def potential_and_field(points, panels: Panels, sigma, *, policy: NearFieldPolicy | None = None,
+                        images: Panels | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`potential_at` and :func:`field_at` together, in one pass: (M,) V, (M, 3) V/m."""
+    return _with_images(points, panels, sigma, policy, ("potential", "field"), images)
 
 
 def potential_at(points, panels: Panels, sigma, *, policy: NearFieldPolicy | None = None,
@@ -64,7 +66,7 @@ def potential_at(points, panels: Panels, sigma, *, policy: NearFieldPolicy | Non
     collocation potential. ``images``: the panels mirrored in a ground plane, whose
     charge is the negative of ``sigma``.
     """
-    return _with_images(points, panels, sigma, policy, "potential", images) / FOUR_PI_EPS0
+    return _with_images(points, panels, sigma, policy, ("potential",), images)[0]
 
 
 def field_at(points, panels: Panels, sigma, *, policy: NearFieldPolicy | None = None,
@@ -75,7 +77,7 @@ def field_at(points, panels: Panels, sigma, *, policy: NearFieldPolicy | None = 
     logarithmically singular there). On a panel's face the normal part is the
     principal value, the mean of the two sides. ``images`` as in :func:`potential_at`.
     """
-    return _with_images(points, panels, sigma, policy, "field", images) / FOUR_PI_EPS0
+    return _with_images(points, panels, sigma, policy, ("field",), images)[0]
 
 
 @dataclass(frozen=True, repr=False)
@@ -89,6 +91,7 @@ class SurfaceField:
     outside, inside, tangential, magnitude : (N,) V/m; magnitude is the larger |E| of the
     two sides
     free_charge_density : (N,) C/m^2 on conductor panels (0 on interfaces)
+    tangential_vector : (N, 3) V/m, the tangential field itself (zero on conductors)
     """
 
     outside: np.ndarray
@@ -96,6 +99,7 @@ class SurfaceField:
     tangential: np.ndarray
     magnitude: np.ndarray
     free_charge_density: np.ndarray
+    tangential_vector: np.ndarray
 
     def __repr__(self) -> str:
         return f"SurfaceField({len(self.magnitude)} panels, max |E| {self.magnitude.max():.4g} V/m)"
@@ -107,7 +111,7 @@ def surface_field(problem, sigma, *, policy: NearFieldPolicy | None = None) -> S
     panels = problem.panels
     sigma = np.asarray(sigma, dtype=np.float64)
     n = len(panels)
-    outside, inside, tangential = np.zeros(n), np.zeros(n), np.zeros(n)
+    outside, inside, tangential = np.zeros(n), np.zeros(n), np.zeros((n, 3))
     on = problem.is_conductor_panel
     outside[on] = sigma[on] / EPS0
     rows = np.flatnonzero(~on)
@@ -121,10 +125,11 @@ def surface_field(problem, sigma, *, policy: NearFieldPolicy | None = None) -> S
         normal[members] += self_terms * sigma[rows[members]] / FOUR_PI_EPS0
         outside[rows] = normal + sigma[rows] / (2.0 * EPS0)
         inside[rows] = normal - sigma[rows] / (2.0 * EPS0)
-        tangential[rows] = np.linalg.norm(e - normal[:, None] * normals, axis=1)
-    magnitude = np.hypot(np.maximum(np.abs(outside), np.abs(inside)), tangential)
+        tangential[rows] = e - normal[:, None] * normals
+    size = np.linalg.norm(tangential, axis=1)
+    magnitude = np.hypot(np.maximum(np.abs(outside), np.abs(inside)), size)
     free = np.where(on, problem.permittivity * sigma, 0.0)
-    return SurfaceField(outside, inside, tangential, magnitude, free)
+    return SurfaceField(outside, inside, size, magnitude, free, tangential)
 
 
 @dataclass(frozen=True)

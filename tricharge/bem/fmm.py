@@ -111,21 +111,33 @@ def multipole_sums(sources, q, targets, precision, gradient):
     return phi, grad
 
 
-def dipole_sums(points, dipoles, *, precision: float = 1e-6) -> np.ndarray:
-    """``S_j = sum_{i != j} d_i . (y_i - y_j) / |y_i - y_j|^3`` for dipoles ``d_i`` (N, 3)
-    at ``points`` (N, 3): the flux through each dipole's patch of the field of a unit
-    charge at every other point (used for the Gauss self terms of closed interfaces).
-    Direct when small, multipole otherwise. Returns (N,)."""
+def dipole_sums(points, dipoles, targets=None, *, precision: float = 1e-6) -> np.ndarray:
+    """``S(x) = sum_i d_i . (y_i - x) / |y_i - x|^3`` of dipoles ``d_i`` at ``points`` y_i
+    (N, 3), evaluated at ``targets`` (M, 3), or at the points themselves (skipping each
+    point's own dipole) when None. ``dipoles`` is (N, 3), or (N, K, 3) for K independent
+    sets summed in one pass. With ``d = A n`` this is the solid angle a small patch subtends
+    (the flux through it of a unit charge at x); used for Gauss self terms and winding
+    numbers. Direct when small, multipole otherwise. Returns (M,) or (M, K)."""
     points = np.asarray(points, dtype=np.float64)
-    dipoles = np.asarray(dipoles, dtype=np.float64)
-    if len(points) ** 2 <= DIRECT_LIMIT:
-        out = np.zeros(len(points))
-        for s in range(0, len(points), 1024):
-            diff = points[None, :, :] - points[s : s + 1024, None, :]  # [j, i] = y_i - y_j
+    d = np.asarray(dipoles, dtype=np.float64)
+    single = d.ndim == 2
+    d = d[:, None, :] if single else d
+    at_points = targets is None
+    targets = points if at_points else np.asarray(targets, dtype=np.float64)
+    if len(points) * len(targets) <= DIRECT_LIMIT:
+        out = np.zeros((len(targets), d.shape[1]))
+        for s in range(0, len(targets), 1024):
+            diff = points[None, :, :] - targets[s : s + 1024, None, :]  # [m, i] = y_i - x_m
             r = np.linalg.norm(diff, axis=2)
             with np.errstate(divide="ignore", invalid="ignore"):
-                out[s : s + 1024] = np.where(r > 0, np.einsum("jid,id->ji", diff, dipoles) / r**3, 0.0).sum(axis=1)
-        return out
-    result = _fmm3dpy().lfmm3d(eps=precision, sources=np.ascontiguousarray(points.T),
-                               dipvec=np.ascontiguousarray(dipoles.T), pg=1)
-    return -4.0 * np.pi * np.asarray(result.pot)  # fmm3dpy's dipole potential is d . (x - y) / (4 pi r^3)
+                weight = np.where(r > 0, 1.0 / r**3, 0.0)
+            out[s : s + 1024] = np.einsum("mid,ikd,mi->mk", diff, d, weight)
+    else:
+        kwargs = dict(eps=precision, sources=np.ascontiguousarray(points.T), nd=d.shape[1],
+                      dipvec=np.ascontiguousarray(np.moveaxis(d, 0, 2) if d.shape[1] > 1 else d[:, 0, :].T))
+        if at_points:
+            pot = _fmm3dpy().lfmm3d(pg=1, **kwargs).pot
+        else:
+            pot = _fmm3dpy().lfmm3d(targets=np.ascontiguousarray(targets.T), pgt=1, **kwargs).pottarg
+        out = -4.0 * np.pi * np.asarray(pot).reshape(d.shape[1], -1).T  # fmm3dpy: d . (x - y) / (4 pi r^3)
+    return out[:, 0] if single else out

@@ -161,3 +161,18 @@ def point_rule_field(points, quad_points, quad_weights) -> np.ndarray:
     diff = points[:, None, :] - quad_points
     r2 = np.einsum("pqd,pqd->pq", diff, diff)
     return np.einsum("pq,pqd->pd", quad_weights / (r2 * np.sqrt(r2)), diff)
+
+
+def solid_angles(points, corners) -> np.ndarray:
+    """Signed solid angle (steradians) each triangle subtends at its point, (p,): positive
+    when the point lies behind the triangle (on the side its normal points away from), so
+    the solid angles of a closed, outward-oriented surface sum to 4 pi at points inside
+    and to 0 outside (van Oosterom & Strackee 1983, as in :func:`triangle_potential`)."""
+    points = np.asarray(points, dtype=np.float64)
+    c = np.asarray(corners, dtype=np.float64)
+    a, b, d = c[:, 0] - points, c[:, 1] - points, c[:, 2] - points
+    na, nb, nd = (np.linalg.norm(x, axis=1) for x in (a, b, d))
+    numerator = np.einsum("pd,pd->p", a, np.cross(b, d))
+    denominator = (na * nb * nd + np.einsum("pd,pd->p", a, b) * nd + np.einsum("pd,pd->p", a, d) * nb
+                   + np.einsum("pd,pd->p", b, d) * na)
+    return 2.0 * np.arctan2(numerator, denominator)

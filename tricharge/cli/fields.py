@@ -9,7 +9,7 @@ import click
 
 from .. import __version__
 from ..errors import OptionError
-from ..terminal import Progress, Terminal
+from ..terminal import Progress, Terminal, placement_notes
 from .common import (FILE, TEXT_FILE, cli, commit, json_option, load_model, method_option, parse_pairs,
                      parse_voltages, plan_outputs, quiet_option, unit_option, volts_option)
 
@@ -83,6 +83,8 @@ def field(input_path: Path, unit: str | None, volts, withstand, top: int, probe,
         rechecked = recheck(result, model, method=method)
         terminal.say("\n" + refinement_report(rechecked))
     values = [result.sample(points) for _, points, _ in requests]
+    for note in placement_notes(requests, values, model):
+        terminal.say(note)
     origin = outputs.provenance(model, command="field")
 
     chart = line_chart(model, requests, values, input_path, lines[0]) if line_png is not None else None
@@ -94,16 +96,18 @@ def field(input_path: Path, unit: str | None, volts, withstand, top: int, probe,
 
 
 def line_chart(model, requests, values, input_path: Path, line: str) -> bytes:
+    """PNG of |E| along the first line; points inside conductors or below the plane are a gap."""
     import numpy as np
 
+    from ..bem.evaluation import FREE, NARROW_GAP, NEAR
     from ..units import metres_per
     from ..viz.plots import line_profile
 
     k = next(k for k, (kind, _, _) in enumerate(requests) if kind == "line")
-    points, (_, e) = requests[k][1], values[k]
+    points, sample = requests[k][1], values[k]
     distance = np.linalg.norm(points - points[0], axis=1) / metres_per(model.unit)
-    return line_profile(distance, np.linalg.norm(e, axis=1), unit=model.unit,
-                        title=f"{input_path.name}: field along {line}")
+    magnitude = np.where(np.isin(sample.where, (FREE, NEAR, NARROW_GAP)), np.linalg.norm(sample.field, axis=1), np.nan)
+    return line_profile(distance, magnitude, unit=model.unit, title=f"{input_path.name}: field along {line}")
 
 
 @cli.command()

@@ -35,18 +35,22 @@ def _csv_text(rows) -> str:
     return buffer.getvalue()
 
 
-def samples_csv(kinds, points, potential, field, unit: str, scale: float) -> str:
+def samples_csv(kinds, points, samples, unit: str, scale: float) -> str:
     """CSV text of sampled potentials and fields.
 
-    kinds : (M,) labels ("probe", "line", "section"); points : (M, 3) metres;
-    potential : (M,) V; field : (M, 3) V/m; coordinates are written in ``unit``
-    (``scale`` metres per unit).
+    kinds : (M,) labels ("probe", "line", "section"); points : (M, 3) metres; samples :
+    :class:`~tricharge.bem.evaluation.Samples` at those points; coordinates and distances
+    are written in ``unit`` (``scale`` metres per unit).
     """
+    from ..bem.evaluation import WHERE
+
     header = ["kind", f"x_{unit}", f"y_{unit}", f"z_{unit}", "potential_V", "Ex_V_per_m", "Ey_V_per_m",
-              "Ez_V_per_m", "E_V_per_m"]
-    magnitude = np.linalg.norm(field, axis=1)
-    rows = ([csv_cell(kind), *(f"{x:.9g}" for x in p), f"{phi:.9g}", *(f"{x:.9g}" for x in e), f"{m:.9g}"]
-            for kind, p, phi, e, m in zip(kinds, points / scale, potential, field, magnitude))
+              "Ez_V_per_m", "E_V_per_m", "where", f"distance_to_surface_{unit}"]
+    magnitude = np.linalg.norm(samples.field, axis=1)
+    rows = ([csv_cell(kind), *(f"{x:.9g}" for x in p), f"{phi:.9g}", *(f"{x:.9g}" for x in e), f"{m:.9g}", WHERE[w],
+             "" if np.isnan(d) else f"{d / scale:.6g}"]
+            for kind, p, phi, e, m, w, d in zip(kinds, points / scale, samples.potential, samples.field, magnitude,
+                                                samples.where, samples.distance))
     return _csv_text([header, *rows])
 
 

@@ -139,27 +139,29 @@ def field_json(result, samples: list[dict], rechecked, origin: dict) -> str:
 
 def stage_samples(stage, targets: dict, model, requests, values) -> list[dict]:
     """Stage the samples' CSV (``targets['samples']``) and the section's VTK image
-    (``targets['vtk']``); ``requests`` as from the command line ([(kind, points (M, 3) m,
-    image geometry or None)]), ``values`` the matching [(potential (M,) V, field (M, 3)
-    V/m)]. Returns the samples as records for the JSON (coordinates in metres)."""
+    (``targets['vtk']``); ``requests`` as from :func:`tricharge.sampling.sample_requests`
+    ([(kind, points (M, 3) m, image geometry or None)]), ``values`` the matching
+    :class:`~tricharge.bem.evaluation.Samples`. Returns the samples as records for the
+    JSON (coordinates and distances in metres)."""
+    from ..bem.evaluation import WHERE, Samples
     from ..units import metres_per
     from .export import image_vti, samples_csv
 
     scale = metres_per(model.unit)
-    kinds, points, potentials, fields = [], [], [], []
-    for (kind, pts, image), (phi, e) in zip(requests, values):
-        kinds += [kind] * len(pts)
-        points.append(pts)
-        potentials.append(phi)
-        fields.append(e)
+    kinds = [kind for kind, points, _ in requests for _ in range(len(points))]
+    points = np.vstack([pts for _, pts, _ in requests])
+    merged = Samples(*(np.concatenate([getattr(v, name) for v in values]) for name in
+                       ("potential", "field", "where", "distance", "panel_size", "conductor")))
+    for (kind, pts, image), sample in zip(requests, values):
         if image is not None and targets.get("vtk") is not None:
             origin, spacing, dims = image  # metres, like the surface .vtu, so the two overlay in a viewer
             stage.text(targets["vtk"], image_vti(origin, spacing, dims, {
-                "potential_V": phi, "E_V_per_m": e, "E_magnitude_V_per_m": np.linalg.norm(e, axis=1)}))
-    points, potentials, fields = np.vstack(points), np.concatenate(potentials), np.vstack(fields)
-    stage.text(targets.get("samples"), samples_csv(kinds, points, potentials, fields, model.unit, scale))
-    return [{"kind": k, "point_m": p.tolist(), "potential_V": float(v), "field_V_per_m": e.tolist()}
-            for k, p, v, e in zip(kinds, points, potentials, fields)]
+                "potential_V": sample.potential, "E_V_per_m": sample.field,
+                "E_magnitude_V_per_m": np.linalg.norm(sample.field, axis=1), "where": sample.where}))
+    stage.text(targets.get("samples"), samples_csv(kinds, points, merged, model.unit, scale))
+    return [{"kind": k, "point_m": p.tolist(), "potential_V": float(v), "field_V_per_m": e.tolist(), "where": WHERE[w],
+             "distance_to_surface_m": None if np.isnan(d) else float(d)}
+            for k, p, v, e, w, d in zip(kinds, points, merged.potential, merged.field, merged.where, merged.distance)]
 
 
 def stage_field(stage, targets: dict, result, model, requests, values, rechecked, origin: dict,

@@ -6,8 +6,8 @@ with outward normals (right-hand rule); open surfaces (disk, plate) face +z.
 """
 
 
-from .bodies import box, combine, cube, disk, plate, sphere
+from .bodies import box, combine, cube, disk, grid_face, plate, sphere
 from .swept import arc_path, arc_rz, capsule, revolve, rod, rotation_minimising_frames, rounded_disk, torus, tube
 
-__all__ = ["arc_path", "arc_rz", "box", "capsule", "combine", "cube", "disk", "plate", "revolve", "rod",
+__all__ = ["arc_path", "arc_rz", "box", "capsule", "combine", "cube", "disk", "grid_face", "plate", "revolve", "rod",
            "rotation_minimising_frames", "rounded_disk", "sphere", "torus", "tube"]

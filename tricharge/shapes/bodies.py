@@ -62,7 +62,7 @@ def _spacing(n: int, graded: bool) -> np.ndarray:
     return 0.5 * (1.0 - np.cos(np.pi * s)) if graded else s
 
 
-def _grid_face(origin, e1, e2, n1, n2, graded):
+def grid_face(origin, e1, e2, n1, n2, graded):
     """Triangulated rectangle origin + s*e1 + t*e2; normal e1 x e2."""
     s, t = _spacing(n1, graded), _spacing(n2, graded)
     ss, tt = np.meshgrid(s, t, indexing="ij")
@@ -94,7 +94,7 @@ def box(size=(1.0, 1.0, 1.0), divisions=(8, 8, 8), center=(0.0, 0.0, 0.0), grade
         (lo, ez, ey, nz, ny),                 # x = lo, normal -x
         (lo + ex, ey, ez, ny, nz),            # x = hi, normal +x
     ]
-    parts = [_grid_face(o, a, b, n1, n2, graded) for o, a, b, n1, n2 in faces]
+    parts = [grid_face(o, a, b, n1, n2, graded) for o, a, b, n1, n2 in faces]
     return _join(parts, 1e-9 * max(lx, ly, lz))
 
 
@@ -107,7 +107,7 @@ def plate(size=(1.0, 1.0), divisions=(8, 8), center=(0.0, 0.0, 0.0), graded: boo
     """Zero-thickness rectangular plate in the plane z = center[2], normal +z."""
     lx, ly = map(float, size)
     origin = np.asarray(center, float) - np.array([lx / 2, ly / 2, 0.0])
-    v, t = _grid_face(origin, np.array([lx, 0, 0.0]), np.array([0, ly, 0.0]), *divisions, graded)
+    v, t = grid_face(origin, np.array([lx, 0, 0.0]), np.array([0, ly, 0.0]), *divisions, graded)
     return v, t.astype(np.int64)
 
 
