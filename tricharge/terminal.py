@@ -188,7 +188,13 @@ def survey_report(model, *, version: str) -> str:
     return "\n".join(lines)
 
 
-#: Printed with every field report (engineering practice; the tool does not replace it).
+#: Cautions are printed when the highest potential in a field solution reaches this many
+#: volts, or whenever withstand margins were asked for. 1 kV: the conventional upper limit
+#: of "low voltage" for AC installations (IEC 60038, from memory); settable with
+#: ``--cautions-from``.
+CAUTIONS_FROM_VOLTS = 1000.0
+
+#: The cautions of a high-voltage field report (engineering practice; the tool does not replace it).
 CAUTIONS = """Cautions for high-voltage use: these are computed fields on an idealised geometry.
   - Keep generous margins: surface contamination, humidity, altitude (lower air density),
     surface roughness, burrs, ageing and transients all lower the real withstand.
@@ -201,8 +207,15 @@ def _kv_per_mm(value: float) -> str:
     return f"{value / 1e6:.4g} kV/mm"
 
 
-def field_report(result, model, *, source: str, version: str) -> str:
-    """The text the ``field`` command prints."""
+def needs_cautions(potentials, margins, threshold: float = CAUTIONS_FROM_VOLTS) -> bool:
+    """True when a field solution's highest |potential| reaches ``threshold`` volts, or
+    margins were asked for."""
+    return bool(len(margins)) or (len(potentials) > 0 and float(np.max(np.abs(potentials))) >= threshold)
+
+
+def field_report(result, model, *, source: str, version: str, cautions_from: float = CAUTIONS_FROM_VOLTS) -> str:
+    """The text the ``field`` command prints; the high-voltage cautions when
+    :func:`needs_cautions` says so."""
     from .units import format_eng, metres_per
 
     scale, unit = metres_per(model.unit), model.unit
@@ -235,7 +248,8 @@ def field_report(result, model, *, source: str, version: str) -> str:
         for medium, e_max, strength in result.margins:
             verdict = "exceeded" if e_max >= strength else f"margin {strength / e_max:.2f}x"
             lines.append(f"  {printable(medium)}: peak {_kv_per_mm(e_max)} against {_kv_per_mm(strength)} ({verdict})")
-    lines += ["", CAUTIONS]
+    if needs_cautions(result.potentials, result.margins, cautions_from):
+        lines += ["", CAUTIONS]
     return "\n".join(lines)
 
 

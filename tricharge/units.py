@@ -27,12 +27,12 @@ def metres_per(unit: str) -> float:
 def prefix_for(value: float) -> tuple[float, str]:
     """Largest engineering prefix (scale, symbol) not above |value| (1 for zero).
 
-    >>> prefix_for(3.2e-13)
-    (1e-15, 'f')
+    >>> prefix_for(3.2e-13), prefix_for(2e-28)
+    ((1e-15, 'f'), (1.0, ''))
     """
     magnitude = abs(value)
-    if magnitude == 0 or not math.isfinite(magnitude):
-        return 1.0, ""
+    if magnitude < min(SI_PREFIXES.values()) * (1 - 1e-12) or not math.isfinite(magnitude):
+        return 1.0, ""  # zero, or below every prefix: plain scientific notation
     chosen = (SI_PREFIXES["a"], "a")
     for symbol, scale in sorted(SI_PREFIXES.items(), key=lambda item: item[1]):
         if magnitude >= scale * (1 - 1e-12):

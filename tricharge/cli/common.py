@@ -70,6 +70,9 @@ method_option = click.option("--method", type=click.Choice(["auto", "dense", "fa
                                    "plane or floating parts).")
 tol_option = click.option("--tol", type=click.FloatRange(1e-12, 1e-2), default=1e-6, show_default=True,
                            help="Relative residual of the iterative (fast) solve.")
+cautions_option = click.option(
+    "--cautions-from", "cautions_from", metavar="VOLTS", default="1kV", show_default=True,
+    help="Show the high-voltage cautions when the highest potential reaches this (always with --withstand).")
 FILE = click.Path(dir_okay=False, path_type=Path)
 TEXT_FILE = click.Path(dir_okay=False, allow_dash=True, path_type=Path)
 

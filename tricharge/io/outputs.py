@@ -107,23 +107,24 @@ def stage_solve(stage, targets: dict, result, full, model, origin: dict, *, form
 
 
 #: Per-panel arrays of a field solution's VTU (read back by ``tricharge view``).
-FIELD_VTU_ARRAYS = ("part", "area_m2", "sigma_total_C_per_m2", "sigma_free_C_per_m2", "E_normal_outside_V_per_m",
-                    "E_normal_inside_V_per_m", "E_tangential_V_per_m", "E_magnitude_V_per_m")
+FIELD_VTU_ARRAYS = ("part", "interface", "area_m2", "sigma_total_C_per_m2", "sigma_free_C_per_m2",
+                    "E_normal_outside_V_per_m", "E_normal_inside_V_per_m", "E_tangential_V_per_m",
+                    "E_magnitude_V_per_m")
 
 
 def field_vtu_data(result) -> dict:
     """name -> (N,) per-panel array of a :class:`~tricharge.pipeline.FieldResult`."""
     surface = result.surface
-    values = (result.groups, result.problem.panels.areas, result.sigma, surface.free_charge_density,
+    interface = (result.problem.panel_conductor < 0).astype(np.int8)
+    values = (result.groups, interface, result.problem.panels.areas, result.sigma, surface.free_charge_density,
               surface.outside, surface.inside, surface.tangential, surface.magnitude)
     return dict(zip(FIELD_VTU_ARRAYS, values))
 
 
-def field_json(result, samples: list[dict], rechecked, origin: dict) -> str:
-    """JSON text of a field solution: potentials, charges, hot spots, margins, samples."""
-    from .export import json_text
-
-    data = {"conductors": list(result.conductors), "potentials_V": result.potentials.tolist(),
+def field_json_data(result, samples: list[dict], rechecked) -> dict:
+    """Plain data of a field solution: potentials, charges, hot spots, margins, samples
+    (SI units; lengths in metres)."""
+    return {"conductors": list(result.conductors), "potentials_V": result.potentials.tolist(),
             "free_charge_C": result.free_charge.tolist(), "method": result.method,
             "converged": result.converged, "iterations": result.iterations, "residual": result.residual,
             "hot_spots": [{"part": result.parts[s.group], "rank": s.rank, "field_V_per_m": s.field,
@@ -133,6 +134,13 @@ def field_json(result, samples: list[dict], rechecked, origin: dict) -> str:
             "margins": [{"medium": m, "peak_V_per_m": e, "withstand_V_per_m": w} for m, e, w in result.margins],
             "peak_refinement": [{"part": p, "before_V_per_m": a, "after_V_per_m": b} for p, a, b in rechecked],
             "samples": samples}
+
+
+def field_json(result, samples: list[dict], rechecked, origin: dict) -> str:
+    """JSON text of a field solution (:func:`field_json_data`) with the provenance block."""
+    from .export import json_text
+
+    data = field_json_data(result, samples, rechecked)
     data.update(origin)
     return json_text(data)
 

@@ -75,3 +75,67 @@ def read_saved_field(path) -> SavedField | None:
             arrays[name] = values.astype(float)
     return SavedField(vertices, triangles.astype(np.int64), arrays, _unit(mesh.field_data), str(path))
 
+
+
+#: Largest report JSON read back (a report of thousands of conductors is far smaller).
+MAX_REPORT_BYTES = 64 * 2**20
+
+
+def _require(data, path: str, kind, where: str):
+    """``data[path...]`` of type ``kind``, or InputFileError naming the key."""
+    value = data
+    for key in path.split("."):
+        if not isinstance(value, dict) or key not in value:
+            raise InputFileError(f"{where}: not a report saved by 'tricharge report --json' (no '{path}'); save it "
+                                 "again")
+        value = value[key]
+    if not isinstance(value, kind):
+        raise InputFileError(f"{where}: '{path}' has the wrong type in this saved report; save it again")
+    return value
+
+
+def _square(data, path: str, size: int, where: str) -> None:
+    matrix = np.asarray(_require(data, path, list, where), dtype=object)
+    try:
+        numbers = np.array(matrix.tolist(), dtype=float)
+    except (TypeError, ValueError):
+        numbers = None
+    if numbers is None or numbers.shape != (size, size) or not np.isfinite(numbers).all():
+        raise InputFileError(f"{where}: '{path}' is not a {size} x {size} matrix of finite numbers; save it again")
+
+
+def read_report_data(path) -> dict:
+    """The data of a report saved by ``tricharge report --json``, checked enough that the
+    page can be made from it (InputFileError naming the first key that does not fit)."""
+    import json
+
+    from .meshes import check_input_file
+
+    path = check_input_file(Path(path))
+    where = printable(path)
+    if path.stat().st_size > MAX_REPORT_BYTES:
+        raise InputFileError(f"{where}: {path.stat().st_size:,} bytes is more than a saved report can be "
+                             f"({MAX_REPORT_BYTES:,}); give the JSON that 'tricharge report --json' wrote")
+    try:
+        data = json.loads(path.read_text(encoding="utf-8"))
+    except (UnicodeDecodeError, ValueError, RecursionError) as exc:
+        raise InputFileError(f"{where}: not readable JSON ({str(exc)[:80]}); give the file 'tricharge report --json' "
+                             "wrote") from None
+    if not isinstance(data, dict) or data.get("report_format") != 1:
+        raise InputFileError(f"{where}: not a report saved by 'tricharge report --json' (format 1); a solve's or a "
+                             "field run's JSON cannot make a report without the model: run 'tricharge report' on it")
+    if _require(data, "unit", str, where) not in LENGTH_UNITS:
+        raise InputFileError(f"{where}: unit {printable(data['unit'])!r} is unknown; save the report again")
+    names = _require(data, "capacitance.conductors", list, where)
+    if not names or not all(isinstance(n, str) for n in names):
+        raise InputFileError(f"{where}: 'capacitance.conductors' must list the conductor names; save it again")
+    for key in ("capacitance.capacitance_matrix", "capacitance.mutual_matrix"):
+        _square(data, key, len(names), where)
+    for key, kind in (("title", str), ("model.parts", list), ("model.panels", int), ("provenance", dict),
+                      ("cautions", bool), ("capacitance.checks", dict), ("capacitance.reference", str),
+                      ("capacitance.method", str), ("capacitance.solve_time_s", (int, float))):
+        _require(data, key, kind, where)
+    if data.get("field_vtu") is not None and (not isinstance(data["field_vtu"], str)
+                                              or Path(data["field_vtu"]).name != data["field_vtu"]):
+        raise InputFileError(f"{where}: 'field_vtu' must name a file beside the report; save it again")
+    return data
