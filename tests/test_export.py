@@ -190,3 +190,22 @@ def test_pyvista_reads_the_surface_and_section_files(solved, tmp_path):
     assert tuple(grid.dimensions) == (1, 9, 9)
     table = np.genfromtxt(samples, delimiter=",", skip_header=1, usecols=(4,))
     np.testing.assert_allclose(np.asarray(grid.point_data["potential_V"]), table, rtol=1e-8)
+
+
+def test_every_geometry_file_is_in_metres_and_records_the_users_unit(tmp_path):
+    """The section image and the surface files overlay in a viewer: both in metres, both
+    saying which unit the user worked in."""
+    import pyvista
+
+    hv = os.path.join(os.path.dirname(__file__), "..", "meshes", "demo_hv.toml")
+    section, surface, capacitance = tmp_path / "s.vti", tmp_path / "f.vtu", tmp_path / "c.vtu"
+    assert main(["field", hv, "-q", "--section", "y=0", "--grid", "5", "--vtk", str(section),
+                 "--vtu", str(surface)]) == 0
+    assert main(["solve", hv, "-q", "--vtu", str(capacitance)]) == 0
+    grids = [pyvista.read(p) for p in (section, surface, capacitance)]
+    for grid in grids:
+        assert float(grid.field_data["metres_per_unit"][0]) == pytest.approx(1e-3)
+    image, mesh = np.array(grids[0].bounds).reshape(3, 2), np.array(grids[1].bounds).reshape(3, 2)
+    size = mesh[:, 1] - mesh[:, 0]
+    assert np.all(image[[0, 2], 0] >= mesh[[0, 2], 0] - 0.21 * size[[0, 2]])  # the section spans the model + 20 %
+    assert np.all(image[[0, 2], 1] <= mesh[[0, 2], 1] + 0.21 * size[[0, 2]])

@@ -54,17 +54,20 @@ def samples_csv(kinds, points, samples, unit: str, scale: float) -> str:
     return _csv_text([header, *rows])
 
 
-def image_vti(origin, spacing, dims, arrays: dict) -> str:
+def image_vti(origin, spacing, dims, arrays: dict, metres_per_unit: float = 1.0) -> str:
     """VTK XML ImageData (.vti, ASCII) text for ParaView and pyvista.
 
     origin, spacing : (3,) metres (as the surface .vtu files); dims : (3,) point counts;
-    arrays : name -> (prod(dims),) or (prod(dims), 3) point data in VTK's x-fastest order.
+    arrays : name -> (prod(dims),) or (prod(dims), 3) point data in VTK's x-fastest order;
+    metres_per_unit : the user's length unit, recorded as field data (as in the .vtu files).
     """
     extent = " ".join(f"0 {d - 1}" for d in dims)
     lines = ['<?xml version="1.0"?>',
              '<VTKFile type="ImageData" version="0.1" byte_order="LittleEndian">',
              f'<ImageData WholeExtent="{extent}" Origin="{" ".join(f"{o:.9g}" for o in origin)}" '
              f'Spacing="{" ".join(f"{s:.9g}" for s in spacing)}">',
+             '<FieldData><DataArray type="Float64" Name="metres_per_unit" NumberOfTuples="1" format="ascii">'
+             f"{metres_per_unit:.17g}</DataArray></FieldData>",
              f'<Piece Extent="{extent}">', "<PointData>"]
     for name, values in arrays.items():
         values = np.asarray(values, dtype=np.float64)

@@ -78,6 +78,7 @@ def stage_solve(stage, targets: dict, result, full, model, origin: dict, *, form
     result the matrix files hold, ``full`` the unreduced one the VTU's per-panel data
     come from. Returns notes for the terminal."""
     from ..bem.results import EPS0
+    from ..units import metres_per
     from .export import matrix_csv, result_json, write_npz, write_vtu
 
     notes = []
@@ -102,7 +103,8 @@ def stage_solve(stage, targets: dict, result, full, model, origin: dict, *, form
         for k, name in enumerate(full.conductors):
             data[f"sigma_C_per_m2_{name}_at_1V"] = full.sigma[:, k]
             data[f"E_normal_V_per_m_{name}_at_1V"] = np.where(full.panel_conductor >= 0, full.sigma[:, k] / EPS0, np.nan)
-        stage.file(targets["vtu"], lambda path: write_vtu(path, model.vertices, model.triangles, data))
+        unit = {"metres_per_unit": metres_per(model.unit)}  # coordinates are metres; the user's unit recorded
+        stage.file(targets["vtu"], lambda path: write_vtu(path, model.vertices, model.triangles, data, unit))
     return notes
 
 
@@ -165,7 +167,7 @@ def stage_samples(stage, targets: dict, model, requests, values) -> list[dict]:
             origin, spacing, dims = image  # metres, like the surface .vtu, so the two overlay in a viewer
             stage.text(targets["vtk"], image_vti(origin, spacing, dims, {
                 "potential_V": sample.potential, "E_V_per_m": sample.field,
-                "E_magnitude_V_per_m": np.linalg.norm(sample.field, axis=1), "where": sample.where}))
+                "E_magnitude_V_per_m": np.linalg.norm(sample.field, axis=1), "where": sample.where}, scale))
     stage.text(targets.get("samples"), samples_csv(kinds, points, merged, model.unit, scale))
     return [{"kind": k, "point_m": p.tolist(), "potential_V": float(v), "field_V_per_m": e.tolist(), "where": WHERE[w],
              "distance_to_surface_m": None if np.isnan(d) else float(d)}
