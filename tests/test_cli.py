@@ -198,7 +198,7 @@ def test_field_samples_probe_line_and_section(tmp_path, capsys):
     assert gap == sorted(gap) and 0 < gap[0] < gap[-1] < 50e3  # rising from the disk to the rod
     root = ElementTree.parse(image).getroot()
     assert root.find("ImageData").get("WholeExtent") == "0 20 0 0 0 20"
-    arrays = {a.get("Name"): len(a.text.split()) for a in root.iter("DataArray")}
+    arrays = {a.get("Name"): len(a.text.split()) for a in root.find("ImageData/Piece/PointData").iter("DataArray")}
     assert arrays == {"potential_V": 441, "E_V_per_m": 3 * 441, "E_magnitude_V_per_m": 441, "where": 441}
 
 

@@ -182,3 +182,77 @@ def test_unit_option_equals_prescaled_coordinates(tmp_path):
     in_mm = solve(load(tmp_path / "mm.msh", unit="mm")).capacitance
     in_m = solve(load(tmp_path / "m.msh")).capacitance
     np.testing.assert_allclose(in_mm, in_m, rtol=1e-12)
+
+
+# -- values that must never reach the solver (issue 13) -----------------------------------
+
+_FLOAT = '[conductors.block]\nsurfaces = ["block"]\n[conductors.ball]\nfloating = true\n'
+
+
+@pytest.mark.parametrize("text, message", [
+    ("a = " + "[" * 3000 + "]" * 3000 + "\n", "arrays or tables are nested too deeply to read"),
+    ("a = " + "{b = " * 3000 + "1" + "}" * 3000 + "\n", "arrays or tables are nested too deeply to read"),
+    ('mesh = "parts.msh"\n[ground]\nz = -1e200\n', r"'ground.z' is -1e\+200 m, beyond any real device; give a height "
+                                                   r"within 1e\+09 m"),
+    ('mesh = "parts.msh"\nunit = "mm"\n[ground]\nz = 2e12\n', r"'ground.z' is 2000000000000.0 mm, .*within 1e\+12 mm"),
+    ('mesh = "parts.msh"\n[ground]\nz = nan\n', "'ground.z' is nan; it must be a height in m, a finite number"),
+    ('mesh = "parts.msh"\n[ground]\nz = -inf\n', "'ground.z' is -inf; it must be a height in m, a finite number"),
+    ('mesh = "parts.msh"\n[ground]\nz = ' + "9" * 400 + "\n", "'ground.z' is 9999.*a finite number"),
+    ('mesh = "parts.msh"\n' + _FLOAT + "net_charge = nan\n", "'conductors.ball.net_charge': 'nan' is not a usable"),
+    ('mesh = "parts.msh"\n' + _FLOAT + "net_charge = -inf\n", "'conductors.ball.net_charge': '-inf' is not a usable"),
+    ('mesh = "parts.msh"\n' + _FLOAT + 'net_charge = "1e999 C"\n', "'conductors.ball.net_charge': '1e999 C' is not"),
+    ('mesh = "parts.msh"\n' + _FLOAT + "net_charge = " + "9" * 400 + "\n",
+     "'conductors.ball.net_charge' is 9999.*give a finite number of C"),
+    ('mesh = "parts.msh"\n[conductors.ball]\nvolts = nan\n[conductors.block]\n', "'conductors.ball.volts': 'nan' is"),
+    ('mesh = "parts.msh"\n[conductors.ball]\nvolts = inf\n[conductors.block]\n', "'conductors.ball.volts': 'inf' is"),
+    ('mesh = "parts.msh"\n[conductors.ball]\nvolts = -' + "9" * 400 + "\n[conductors.block]\n",
+     "'conductors.ball.volts' is -9999.*give a finite number of V"),
+    ('mesh = "parts.msh"\n[media]\noil = inf\n', r"'media.oil' is inf; it must be a relative permittivity \(a number"),
+    ('mesh = "parts.msh"\n[media]\noil = nan\n', "'media.oil' is nan; it must be a relative permittivity"),
+    ('mesh = "parts.msh"\n[media]\noil = 1e300\n', r"'media.oil' is 1e\+300; a relative permittivity must be >= 1 and "
+                                                   r"at most 1e\+06"),
+    ('mesh = "parts.msh"\n[media]\noil = ' + "9" * 400 + "\n", "'media.oil' is 9999.*a finite number"),
+    ('mesh = "cube\\u0000.stl"\n', r"'mesh' names 'cube\\x00.stl', which is not a file name"),
+    ('mesh = ["parts.msh", " "]\n', "'mesh' names ' ', which is not a file name"),
+    ('mesh = ["parts.msh"' + ', "parts.msh"' * 5000 + "]\n",
+     "'mesh' names 'parts.msh' twice; name every mesh file once"),
+])
+def test_values_that_cannot_be_solved_are_refused_by_key(tmp_path, text, message):
+    _write_msh(tmp_path / "parts.msh")
+    with pytest.raises(ModelFileError, match=message) as caught:
+        load(_write(tmp_path, text))
+    assert "model.toml" in str(caught.value)
+
+
+def test_non_finite_quantities_are_refused_here_too(tmp_path, monkeypatch):
+    """Whatever units.parse_quantity lets through, the model file refuses non-finite values by key."""
+    import tricharge.io.modelfile as modelfile
+
+    _write_msh(tmp_path / "parts.msh")
+    monkeypatch.setattr(modelfile, "parse_quantity", lambda value, unit, what: float(value))
+    with pytest.raises(ModelFileError, match=r"'conductors.ball.net_charge' is nan; give a finite number of C"):
+        load(_write(tmp_path, 'mesh = "parts.msh"\n' + _FLOAT + "net_charge = nan\n"))
+
+
+def test_errors_of_a_mesh_name_the_model_file_too(tmp_path):
+    (tmp_path / "zero.stl").write_bytes(b"x" * 80 + b"\0\0\0\0")
+    with pytest.raises(TrichargeError, match=r"model.toml: .*zero.stl: the mesh has no triangles"):
+        load(_write(tmp_path, 'mesh = "zero.stl"\n'))
+
+
+def test_a_model_file_without_unit_is_flagged_when_large(tmp_path):
+    _write_msh(tmp_path / "parts.msh")  # 2.8 m across in metres
+    path = _write(tmp_path, 'mesh = "parts.msh"\n')
+    assert load(path).warnings == (f"{path}: no unit given, coordinates read as metres: the model is 2.79 m across; "
+                                   'if they are millimetres, add unit = "mm" to the file',)
+    assert load(path, unit="m").warnings == ()
+    assert load(_write(tmp_path, 'mesh = "parts.msh"\nunit = "m"\n', "b.toml")).warnings == ()
+
+
+def test_load_refuses_what_is_not_a_path_or_unit(tmp_path):
+    from tricharge.errors import OptionError
+
+    with pytest.raises(OptionError, match="load.. needs a file name .text or a path., got NoneType"):
+        load(None)
+    with pytest.raises(OptionError, match=r"unit must be one of m, cm, mm, um, in, mil \(text\), got \['mm'\]"):
+        load(tmp_path / "x.stl", unit=["mm"])

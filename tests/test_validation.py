@@ -5,7 +5,7 @@ import numpy as np
 import pytest
 
 from tricharge import shapes
-from tricharge.errors import MeshError
+from tricharge.errors import MeshError, OptionError
 from tricharge.mesh import merge_vertices
 from tricharge.model import Conductor, Interface, Medium, Model
 
@@ -189,3 +189,151 @@ def test_interface_below_the_plane_or_in_it_is_refused():
         _slab_model(-0.2)
     with pytest.raises(MeshError, match=r"board.toml: 18 panels lie in the ground plane z = 0 m; leave them out"):
         _slab_model(0.0, with_bottom=True)
+
+
+# -- the Python API refuses with our errors (issue 13) ------------------------------------
+
+def test_unknown_medium_is_our_error_and_a_key_error():
+    from tricharge.errors import TrichargeError
+    from tricharge.model import UnknownMedium
+
+    v, t = shapes.cube(1.0, 2)
+    model = Model.from_arrays(v, t, permittivity=2.5, source="part.stl")
+    assert model.permittivity("medium") == 2.5 and model.permittivity("vacuum") == 1.0
+    with pytest.raises(UnknownMedium, match=r"^part.stl: no medium named 'oil'; use one the model has: vacuum, "
+                                             r"medium$"):
+        model.permittivity("oil")
+    with pytest.raises(KeyError):
+        model.permittivity("oil")
+    with pytest.raises(TrichargeError):
+        model.permittivity(None)
+
+
+@pytest.mark.parametrize("kwargs, error, message", [
+    (dict(labels=np.full(12, 0.5)), MeshError, "labels must be one integer per triangle, got float64 values"),
+    (dict(labels=["a"] * 12), MeshError, "labels must be one integer per triangle"),
+    (dict(labels=[[0], [0, 1]]), MeshError, "labels must be one integer per triangle"),
+    (dict(labels=np.full(12, np.nan)), MeshError, "labels must be one integer per triangle"),
+    (dict(labels=np.full(12, True)), MeshError, "labels must be one integer per triangle"),
+    (dict(labels=np.arange(12) - 1), MeshError, r"surface labels must lie in 0..10"),
+    (dict(labels=np.zeros(5, int)), MeshError, r"\(5,\) surface labels for 12 triangles"),
+    (dict(conductors="ab"), MeshError, "conductors must be a list of names"),
+    (dict(conductors=(1,)), MeshError, "conductors must be a list of names"),
+    (dict(permittivity=0.5), OptionError, "permittivity=0.5: give the relative permittivity of the medium, a number "
+                                          r"from 1 to 1e\+06"),
+    (dict(permittivity=float("nan")), OptionError, "permittivity=nan"),
+    (dict(permittivity=float("inf")), OptionError, "permittivity=inf"),
+    (dict(permittivity="3"), OptionError, "permittivity='3'"),
+    (dict(permittivity=None), OptionError, "permittivity=None"),
+    (dict(permittivity=True), OptionError, "permittivity=True"),
+    (dict(unit=None), OptionError, r"unit must be one of m, cm, mm, um, in, mil \(text\), got None"),
+    (dict(unit=["mm"]), OptionError, "unit must be one of"),
+])
+def test_from_arrays_refuses_bad_arguments(kwargs, error, message):
+    v, t = shapes.cube(1.0, 1)  # 12 triangles
+    with pytest.raises(error, match=message):
+        Model.from_arrays(v, t, **kwargs)
+
+
+@pytest.mark.parametrize("vertices, triangles, message", [
+    ([["a", "b", "c"]], [[0, 0, 0]], "vertices and triangles must be numeric arrays"),
+    ([[0, 0], [1, 0, 0]], [[0, 1, 0]], "vertices and triangles must be numeric arrays"),
+    ([[0, 0, 0], [1, 0, 0], [0, 1, 0]], [[0, 1], [2]], "vertices and triangles must be numeric arrays"),
+    ([[0, 0, 0], [1, 0, 0], [0, 1, 0]], [[0, 1, 2, 0]], r"triangles must have shape \(m, 3\)"),
+    ([[0, 0, 0], [1, 0, 0], [0, 1, 0]], [[0, 1, 9]], "triangle indices must lie in 0..2"),
+])
+def test_from_arrays_refuses_bad_arrays(vertices, triangles, message):
+    with pytest.raises(MeshError, match=message):
+        Model.from_arrays(vertices, triangles, source="arrays")
+
+
+@pytest.mark.parametrize("kwargs, error, message", [
+    (dict(unit=3), OptionError, "unit must be one of"),
+    (dict(surfaces="a"), MeshError, "surfaces must be a list of names"),
+    (dict(conductors=("a",)), MeshError, "every conductor must be of type Conductor"),
+    (dict(conductors=(Conductor("a", "a"),)), MeshError, "every conductor must be of type Conductor"),
+    (dict(conductors=(Conductor("a", ("a",), voltage="3"),)), MeshError,
+     "conductor 'a' must be given a number of volts"),
+    (dict(conductors=(Conductor("a", ("a",), floating=1),)), MeshError, "conductor 'a' must be given"),
+    (dict(conductors=(Conductor("a", ("a",), voltage=1e16),)), MeshError, r"voltage 1e\+16; give a finite number of "
+                                                                          r"volts up to 1e\+15"),
+    (dict(conductors=(Conductor("a", ("a",), floating=True, net_charge=float("nan")),)), MeshError,
+     "has net charge nan; give a finite number of coulombs"),
+    (dict(interfaces=(Interface("s", ("a",), 1, "vacuum"),)), MeshError, "interface 's' must be given its inside"),
+    (dict(interfaces=("s",)), MeshError, "every interface must be of type Interface"),
+    (dict(media=(Medium("oil", "2"),)), MeshError, "every medium must be of type Medium, with a name"),
+    (dict(media=(Medium("oil", 1e7),)), MeshError, r"relative permittivity 10000000.0; it must be >= 1 and at most"),
+    (dict(background=None), MeshError, "the background and conductor media must be medium names"),
+    (dict(conductor_media={"a": 1}), MeshError, "the background and conductor media must be medium names"),
+    (dict(ground_z="0"), MeshError, "ground_z must be a height in metres or None"),
+    (dict(ground_z=-1e200), MeshError, r"ground plane height -1e\+200 m is not a finite number within 1e\+09 m"),
+    (dict(surface_index=np.full(12, 0.5)), MeshError, "surface labels must be one integer per triangle"),
+])
+def test_model_refuses_records_of_the_wrong_kind(kwargs, error, message):
+    v, t = shapes.cube(1.0, 2)
+    args = dict(surface_index=np.zeros(len(t), int), surfaces=("a",), conductors=(Conductor("a", ("a",)),),
+                source="m.toml")
+    args.update(kwargs)
+    with pytest.raises(error, match=message):
+        Model(v, t, **args)
+
+
+# -- vertex merging: semantics and cost for any input -------------------------------------
+
+def test_merge_semantics_on_random_clusters():
+    """Pairs closer than the tolerance always merge; merged vertices are linked by steps of
+    at most 2 sqrt(3) tolerances; the first vertex of each cluster is kept, in first-use order."""
+    from scipy.sparse import coo_matrix
+    from scipy.sparse.csgraph import connected_components
+
+    rng = np.random.default_rng(7)
+    for _ in range(200):
+        n = int(rng.integers(1, 50))
+        v = rng.integers(0, 5, (n, 3)) * 0.5e-9 + rng.random((n, 3)) * rng.choice([0.0, 1e-9])
+        t = rng.permutation(3 * n).reshape(n, 3) % n  # every vertex used
+        merged, tri = merge_vertices(v, t, 1e-9)
+        label = np.full(n, -1)
+        label[t.ravel()] = tri.ravel()
+        used = np.unique(t)
+        d = np.linalg.norm(v[used, None] - v[None, used], axis=2)
+        same = label[used][:, None] == label[used][None, :]
+        assert same[d < 1e-9].all()
+        _, reach = connected_components(coo_matrix(d <= 2 * np.sqrt(3) * 1e-9 * (1 + 1e-6)))
+        assert not (same & (reach[:, None] != reach[None, :])).any()
+        first_use = [int(np.flatnonzero(label[t.ravel()] == k)[0]) for k in range(len(merged))]
+        assert first_use == sorted(first_use)
+        np.testing.assert_array_equal(merged, [v[used[label[used] == k].min()] for k in range(len(merged))])
+
+
+def test_merge_is_linear_for_coincident_and_clustered_vertices():
+    n = 300_000
+    triangles = np.arange(n).reshape(-1, 3)
+    vertices, tri = merge_vertices(np.zeros((n, 3)), triangles, 1e-9)
+    assert vertices.shape == (1, 3) and not tri.any()
+    chain = np.zeros((n, 3))
+    chain[:, 0] = np.arange(n) * 1e-20  # all within the tolerance of each other
+    chain[-1] = [1.0, 1.0, 1.0]
+    vertices, tri = merge_vertices(chain, triangles, 1.7e-9)
+    assert vertices.tolist() == [[0.0, 0.0, 0.0], [1.0, 1.0, 1.0]] and tri[-1].tolist() == [0, 0, 1]
+    far = np.full((n, 3), 1e8)
+    far[:, 0] += np.arange(n) * 1e-9  # steps below the float spacing (1.5e-8) at 1e8
+    vertices, _ = merge_vertices(far, triangles, 1e-9)
+    assert len(vertices) == len(np.unique(far[:, 0]))  # exact duplicates merge, distinct floats stay apart
+
+
+def test_merge_keeps_non_finite_vertices_apart():
+    v = np.array([[0, 0, 0], [np.nan, 0, 0], [np.nan, 0, 0], [np.inf, 0, 0], [0, 0, 1e-12], [1e308, 0, 0]])
+    merged, tri = merge_vertices(v, [[0, 1, 2], [3, 4, 5]], 1e-9)
+    assert tri.tolist() == [[0, 1, 2], [3, 0, 4]] and len(merged) == 5  # 1e308 is merged only when identical
+    merged, tri = merge_vertices(v, [[0, 1, 2], [3, 4, 5]], 0.0)  # no tolerance: identical coordinates only
+    assert tri.tolist() == [[0, 1, 2], [3, 4, 5]]
+
+
+def test_a_triangle_piled_up_many_times_is_refused_before_the_checks():
+    """4,000 copies of one facet would make the contact search quadratic (2 GB at 200 kB of STL)."""
+    v = np.array([[0, 0, 0], [1, 0, 0], [0, 1, 0]], float)
+    with pytest.raises(MeshError, match=r"pile.stl: one triangle occurs 4,000 times \(near \(0.3333, 0.3333, 0\) m; "
+                                        r"3,999 copies in all\); remove the copies"):
+        Model.from_arrays(v, np.tile([[0, 1, 2]], (4000, 1)), source="pile.stl")
+    with pytest.raises(MeshError, match="few.stl: conductor 'c1' has 1 duplicated triangles"):
+        Model.from_arrays(v, np.tile([[0, 1, 2]], (3, 1)), source="few.stl")  # a few copies: the checks report them

@@ -21,6 +21,10 @@ DEGENERATE_AREA_FRACTION = 1e-10
 #: Coordinates beyond this many metres are refused before any arithmetic can overflow.
 MAX_COORDINATE = 1e9
 
+#: Vertex merging snaps coordinates to cubes this many tolerances wide (see
+#: :func:`merge_vertices`); the factor (1 + 1e-6) absorbs the rounding of the snapping.
+MERGE_CELL = 2.0 * (1.0 + 1e-6)
+
 
 def validate_surface(vertices, triangles, *, source: str = "mesh") -> tuple[np.ndarray, np.ndarray]:
     """Check a triangle surface and return it as contiguous float64/int64 arrays.
@@ -78,6 +82,13 @@ def validate_surface(vertices, triangles, *, source: str = "mesh") -> tuple[np.n
 def merge_vertices(vertices, triangles, tolerance: float):
     """Merge vertices closer than ``tolerance`` (metres) and drop unused ones.
 
+    Vertices are snapped to cubes of side ``2 * tolerance`` in eight grids offset by half
+    a cube per axis; vertices sharing a cube in any grid are joined, transitively. So
+    vertices closer than ``tolerance`` (along every axis) always merge, vertices up to
+    ``2 * sqrt(3) * tolerance`` apart may merge, and chains merge into one. O(n log n)
+    time and O(n) memory for any input. Non-finite vertices never merge; with a tolerance
+    not positive or below the coordinates' resolution, only identical ones do.
+
     Parameters
     ----------
     vertices : (n, 3) float
@@ -89,21 +100,62 @@ def merge_vertices(vertices, triangles, tolerance: float):
     -------
     vertices : (k, 3) float64, the first vertex of every cluster, in first-use order
     triangles : (m, 3) int64 re-indexed
+
+    >>> v = [[0, 0, 0], [1, 0, 0], [1e-12, 0, 0], [0, 1, 0]]
+    >>> merge_vertices(v, [[0, 1, 3], [2, 1, 3]], 1e-9)[1].tolist()
+    [[0, 1, 2], [0, 1, 2]]
     """
     v = np.asarray(vertices, dtype=np.float64)
     t = np.asarray(triangles, dtype=np.int64)
-    pairs = cKDTree(v).query_pairs(r=tolerance, output_type="ndarray")
     n = len(v)
-    graph = coo_matrix((np.ones(len(pairs)), (pairs[:, 0], pairs[:, 1])), shape=(n, n)) if len(pairs) else coo_matrix((n, n))
-    _, cluster = _components(graph, directed=False)
+    cluster = np.arange(n, dtype=np.int64)
+    finite = np.flatnonzero(np.isfinite(v).all(axis=1))
+    same = finite[_first_of_cell(v[finite] + 0.0)]  # identical coordinates first (+ 0.0: no -0.0)
+    cluster = _joined(cluster, cluster[finite], cluster[same])
+    inside, scaled = _scaled(np.unique(same), v, float(tolerance))
+    for offset in np.ndindex(2, 2, 2):
+        first = inside[_first_of_cell(np.floor(scaled + 0.5 * np.array(offset)) + 0.0)]
+        cluster = _joined(cluster, cluster[inside], cluster[first])
     used_clusters, first_use = np.unique(cluster[t.ravel()], return_index=True)
     order = np.argsort(first_use)
-    new_index = np.full(cluster.max() + 1, -1, dtype=np.int64)
+    new_index = np.full(n, -1, dtype=np.int64)
     new_index[used_clusters[order]] = np.arange(len(order))
-    representative = np.full(cluster.max() + 1, -1, dtype=np.int64)
+    representative = np.full(n, -1, dtype=np.int64)
     representative[cluster[::-1]] = np.arange(n)[::-1]  # lowest original index per cluster
-    new_vertices = v[representative[used_clusters[order]]]
-    return new_vertices, new_index[cluster[t]]
+    return v[representative[used_clusters[order]]], new_index[cluster[t]]
+
+
+def _scaled(index: np.ndarray, v: np.ndarray, tolerance: float) -> tuple[np.ndarray, np.ndarray]:
+    """The vertices ``index`` (p,) that take part in the merging grids, and their
+    coordinates (p', 3) in cells; those whose cell coordinates overflow (or all, for a
+    tolerance not positive) are left out and merge only with identical vertices."""
+    if not tolerance > 0 or not len(index):
+        return index[:0], np.zeros((0, 3))
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+        scaled = (v[index] - v[index].min(axis=0)) / (MERGE_CELL * tolerance)
+    keep = np.isfinite(scaled).all(axis=1)
+    return index[keep], scaled[keep]
+
+
+def _first_of_cell(keys: np.ndarray) -> np.ndarray:
+    """(p,) index of the first point (lowest index) in the cell of every point; keys (p, 3)."""
+    order = np.lexsort(keys.T[::-1])  # stable: equal keys keep their index order
+    ordered = keys[order]
+    starts = np.ones(len(keys), dtype=bool)
+    starts[1:] = (ordered[1:] != ordered[:-1]).any(axis=1)
+    first = np.empty(len(keys), dtype=np.int64)
+    first[order] = order[np.flatnonzero(starts)[np.cumsum(starts) - 1]]
+    return first
+
+
+def _joined(labels: np.ndarray, a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """(n,) cluster labels (in 0..n-1) after joining cluster ``a[k]`` with ``b[k]`` for every k."""
+    link = a != b
+    if not link.any():
+        return labels
+    n = len(labels)
+    graph = coo_matrix((np.ones(int(link.sum()), np.int8), (a[link], b[link])), shape=(n, n))
+    return _components(graph, directed=False)[1][labels]
 
 
 def connected_components(triangles) -> np.ndarray:

@@ -26,15 +26,35 @@ from __future__ import annotations
 
 from dataclasses import InitVar, dataclass, field
 from functools import cached_property
+from numbers import Real
 
 import numpy as np
 
-from .errors import MeshError
-from .mesh import connected_components, validate_surface
+from .errors import MeshError, OptionError, TrichargeError
+from .mesh import MAX_COORDINATE, connected_components, validate_surface
 from .survey import Survey, orient_parts, survey
-from .units import metres_per
+from .units import MAX_QUANTITY, metres_per
 
 VACUUM = "vacuum"
+
+#: A triangle repeated more often than this is refused before the geometry checks, whose
+#: search for touching parts costs the square of the panels piled up in one place (our
+#: choice: a real mesh never repeats a triangle; a few copies are reported by the checks).
+MAX_REPEATS = 8
+
+#: Largest relative permittivity accepted. The largest values reported for real
+#: materials ("colossal" permittivity ceramics) are about 1e5 (from memory); beyond
+#: 1e6 a value is a typing mistake.
+MAX_PERMITTIVITY = 1e6
+
+
+class UnknownMedium(TrichargeError, KeyError):
+    """A medium asked for by name that the model does not have. A KeyError, as a failed
+    lookup by name is (``except KeyError`` keeps working), and a TrichargeError, so the
+    command line reports it as the user's mistake."""
+
+    def __str__(self) -> str:  # KeyError would show the message in quotes
+        return str(self.args[0]) if self.args else ""
 
 
 @dataclass(frozen=True)
@@ -120,13 +140,22 @@ class Model:
     problems: tuple[str, ...] = field(init=False, default=())
 
     def __post_init__(self, check: bool):
+        if not isinstance(self.unit, str):
+            raise OptionError(f"unit must be one of m, cm, mm, um, in, mil (text), got {self.unit!r}")
         metres_per(self.unit)  # validates the unit name
-        v, t = validate_surface(self.vertices, self.triangles, source=self.source)
+        _check_records(self)
+        try:
+            v, t = validate_surface(self.vertices, self.triangles, source=self.source)
+        except (TypeError, ValueError) as exc:
+            if isinstance(exc, MeshError):
+                raise
+            raise MeshError(f"{self.source}: vertices and triangles must be numeric arrays of shape (n, 3) and (m, 3) "
+                            f"({exc})") from None
         object.__setattr__(self, "vertices", v)
         object.__setattr__(self, "triangles", t)
-        index = np.asarray(self.surface_index, dtype=np.int64)
-        object.__setattr__(self, "surface_index", index)
+        object.__setattr__(self, "surface_index", _integer_labels(self.source, "surface labels", self.surface_index))
         _check_references(self)
+        _check_repeats(self)
         triangles, flipped, orientation_errors = orient_parts(self)
         object.__setattr__(self, "triangles", triangles)
         object.__setattr__(self, "notes", tuple(self.notes) + tuple(flipped))
@@ -151,15 +180,29 @@ class Model:
         conductors : names; default ``c1, c2, ...``
         permittivity : relative permittivity of the medium around the conductors
         """
-        v = np.asarray(vertices, dtype=np.float64) * metres_per(unit)
-        t = np.asarray(triangles)
+        scale = metres_per(unit) if isinstance(unit, str) else None
+        if scale is None:
+            raise OptionError(f"unit must be one of m, cm, mm, um, in, mil (text), got {unit!r}")
+        try:
+            v = np.asarray(vertices, dtype=np.float64) * scale
+            t = np.asarray(triangles)
+        except (TypeError, ValueError) as exc:
+            raise MeshError(f"{source}: vertices and triangles must be numeric arrays ({exc})") from None
         if labels is None:
-            labels = connected_components(t) if t.ndim == 2 and t.size else np.zeros(len(t), np.int64)
-        labels = np.asarray(labels, dtype=np.int64)
+            usable = t.ndim == 2 and t.shape[1] == 3 and t.size and t.dtype.kind in "iu" and v.ndim == 2
+            usable = usable and 0 <= t.min() and t.max() < len(v)
+            labels = connected_components(t) if usable else np.zeros(len(t) if t.ndim else 0, np.int64)
+        labels = _integer_labels(source, "labels", labels)
         if conductors is None:
             conductors = tuple(f"c{k + 1}" for k in range(int(labels.max()) + 1 if labels.size else 0))
+        if isinstance(conductors, str) or not all(isinstance(n, str) for n in conductors):
+            raise MeshError(f"{source}: conductors must be a list of names (text), got {conductors!r:.80}")
         names = tuple(conductors)
         media, background = (), VACUUM
+        if not (isinstance(permittivity, Real) and not isinstance(permittivity, bool)
+                and 1.0 <= permittivity <= MAX_PERMITTIVITY):
+            raise OptionError(f"permittivity={permittivity!r:.40}: give the relative permittivity of the medium, a "
+                              f"number from 1 to {MAX_PERMITTIVITY:g}")
         if permittivity != 1.0:
             media, background = (Medium("medium", float(permittivity)),), "medium"
         return cls(v, t, labels, names, tuple(Conductor(n, (n,)) for n in names), media=media,
@@ -205,7 +248,8 @@ class Model:
                 return m.permittivity
         if medium == VACUUM:
             return 1.0
-        raise KeyError(medium)
+        known = ", ".join([VACUUM] + [m.name for m in self.media])
+        raise UnknownMedium(f"{self.source}: no medium named {str(medium)[:80]!r}; use one the model has: {known}")
 
     def medium_of_surface(self, surface: str) -> str:
         """The medium a conductor surface touches."""
@@ -233,7 +277,8 @@ def _check_references(model: Model) -> None:
     _unique(src, "medium", [md.name for md in model.media])
     if not model.conductors:
         raise MeshError(f"{src}: the model has no conductors; name at least one")
-    empty = [model.surfaces[s] for s in range(n_surfaces) if not np.any(model.surface_index == s)]
+    counts = np.bincount(model.surface_index, minlength=n_surfaces)
+    empty = [model.surfaces[s] for s in np.flatnonzero(counts == 0)]
     if empty:
         raise MeshError(f"{src}: surfaces without triangles: {', '.join(empty)}")
 
@@ -255,8 +300,9 @@ def _check_references(model: Model) -> None:
 
     known = {md.name for md in model.media} | {VACUUM}
     for md in model.media:
-        if not (np.isfinite(md.permittivity) and md.permittivity >= 1.0):
-            raise MeshError(f"{src}: medium '{md.name}' has relative permittivity {md.permittivity}; it must be >= 1")
+        if not (np.isfinite(md.permittivity) and 1.0 <= md.permittivity <= MAX_PERMITTIVITY):
+            raise MeshError(f"{src}: medium '{md.name}' has relative permittivity {md.permittivity}; it must be >= 1 "
+                            f"and at most {MAX_PERMITTIVITY:g}")
     if model.background not in known:
         raise MeshError(f"{src}: background medium '{model.background}' is not defined; define it among the media")
     for i in model.interfaces:
@@ -271,12 +317,17 @@ def _check_references(model: Model) -> None:
         if medium not in known:
             raise MeshError(f"{src}: surface '{surface}' touches medium '{medium}', which is not defined")
     for c in model.conductors:
-        if c.voltage is not None and not np.isfinite(c.voltage):
-            raise MeshError(f"{src}: conductor '{c.name}' has voltage {c.voltage}; give a finite number of volts")
+        if c.voltage is not None and not (np.isfinite(c.voltage) and abs(c.voltage) <= MAX_QUANTITY):
+            raise MeshError(f"{src}: conductor '{c.name}' has voltage {c.voltage}; give a finite number of volts "
+                            f"up to {MAX_QUANTITY:g}")
+        if not (np.isfinite(c.net_charge) and abs(c.net_charge) <= MAX_QUANTITY):
+            raise MeshError(f"{src}: conductor '{c.name}' has net charge {c.net_charge}; give a finite number of "
+                            f"coulombs up to {MAX_QUANTITY:g}")
         if c.floating and c.voltage is not None:
             raise MeshError(f"{src}: conductor '{c.name}' is floating and has a voltage; choose one")
-    if model.ground_z is not None and not np.isfinite(model.ground_z):
-        raise MeshError(f"{src}: ground plane height {model.ground_z} is not a finite number")
+    if model.ground_z is not None and not (np.isfinite(model.ground_z) and abs(model.ground_z) <= MAX_COORDINATE):
+        raise MeshError(f"{src}: ground plane height {model.ground_z} m is not a finite number within "
+                        f"{MAX_COORDINATE:g} m of the origin")
 
 
 def _unique(source: str, kind: str, names) -> None:
@@ -287,3 +338,61 @@ def _unique(source: str, kind: str, names) -> None:
     blank = [n for n in names if not str(n).strip()]
     if blank:
         raise MeshError(f"{source}: a {kind} has an empty name; give every {kind} a name")
+
+
+def _integer_labels(source: str, what: str, labels) -> np.ndarray:
+    """(m,) int64 labels; MeshError for anything that is not whole numbers."""
+    try:
+        values = np.asarray(labels)
+    except ValueError as exc:  # ragged lists
+        raise MeshError(f"{source}: {what} must be one integer per triangle ({exc})") from None
+    if values.dtype.kind in "iu":
+        return values.astype(np.int64)
+    if values.dtype.kind == "b" or values.dtype.kind not in "f" or not np.all(np.isfinite(values)) \
+            or not np.all(values == np.round(values)) or (values.size and np.abs(values).max() > 2**62):
+        raise MeshError(f"{source}: {what} must be one integer per triangle, got {str(values.dtype)} values")
+    return values.astype(np.int64)
+
+
+def _check_records(model) -> None:
+    """Every record and name of the right type (MeshError naming the first that is not)."""
+    def fail(what, value):
+        raise MeshError(f"{model.source}: {what} must be {value}")
+
+    def is_number(x):
+        return isinstance(x, Real) and not isinstance(x, bool)
+
+    if not isinstance(model.surfaces, (tuple, list)) or not all(isinstance(s, str) for s in model.surfaces):
+        fail("surfaces", "a list of names (text)")
+    object.__setattr__(model, "surfaces", tuple(model.surfaces))
+    for kind, records, record_type in (("conductor", model.conductors, Conductor), ("interface", model.interfaces,
+                                                                                    Interface)):
+        for r in records:
+            if not isinstance(r, record_type) or not isinstance(r.name, str) or isinstance(r.surfaces, str) \
+                    or not all(isinstance(s, str) for s in r.surfaces):
+                fail(f"every {kind}", f"of type {record_type.__name__}, with a name and surface names (text)")
+    for c in model.conductors:
+        if not (c.voltage is None or is_number(c.voltage)) or not is_number(c.net_charge) \
+                or not isinstance(c.floating, bool):
+            fail(f"conductor {c.name!r:.60}", "given a number of volts or None, a number of coulombs and floating "
+                                              "True or False")
+    for i in model.interfaces:
+        if not (isinstance(i.inside, str) and isinstance(i.outside, str)):
+            fail(f"interface {i.name!r:.60}", "given its inside and outside media by name")
+    for m in model.media:
+        if not (isinstance(m, Medium) and isinstance(m.name, str) and is_number(m.permittivity)):
+            fail("every medium", "of type Medium, with a name (text) and a relative permittivity (a number)")
+    if not isinstance(model.background, str) or not isinstance(model.conductor_media, dict) \
+            or not all(isinstance(k, str) and isinstance(v, str) for k, v in model.conductor_media.items()):
+        fail("the background and conductor media", "medium names (text)")
+    if not (model.ground_z is None or is_number(model.ground_z)):
+        fail("ground_z", "a height in metres or None")
+
+
+def _check_repeats(model) -> None:
+    """MeshError when one triangle occurs more than MAX_REPEATS times."""
+    _, first, counts = np.unique(np.sort(model.triangles, axis=1), axis=0, return_index=True, return_counts=True)
+    if counts.max() > MAX_REPEATS:
+        where = ", ".join(f"{x:.4g}" for x in model.vertices[model.triangles[first[np.argmax(counts)]]].mean(axis=0))
+        raise MeshError(f"{model.source}: one triangle occurs {counts.max():,} times (near ({where}) m; "
+                        f"{int((counts - 1).sum()):,} copies in all); remove the copies")

@@ -271,14 +271,21 @@ class Terminal:
 
     def __init__(self, quiet: bool = False, to_stderr: bool = False):
         self.quiet, self.to_stderr = quiet, to_stderr
+        self.pending: list[str] = []
 
     def say(self, text: str) -> None:
         if not self.quiet:
             click.echo(text, err=self.to_stderr)
 
-    @staticmethod
-    def warn(text: str) -> None:
-        click.echo(f"tricharge: warning: {printable(text)}", err=True)
+    def warn(self, text: str) -> None:
+        """Keep a warning for :meth:`flush_warnings`: warnings are shown once the work has
+        succeeded, so a run that fails ends in its one error line."""
+        self.pending.append(text)
+
+    def flush_warnings(self) -> None:
+        for text in dict.fromkeys(self.pending):
+            click.echo(f"tricharge: warning: {printable(text)}", err=True)
+        self.pending = []
 
 class Progress:
     """Progress bars on stderr for long work; silent when quiet or not a terminal."""

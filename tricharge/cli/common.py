@@ -26,7 +26,8 @@ def plan_outputs(input_path: Path, outputs: dict):
 
 def load_model(input_path: Path, unit: str | None, plan, terminal: Terminal, *, method: str | None = None,
           check: bool = True):
-    """Read the model, check the outputs against every file it names, print its warnings."""
+    """Read the model, check the outputs against every file it names, keep its warnings
+    (shown when the run has succeeded, see :func:`commit`)."""
     from ..io.modelfile import load
 
     model = load(input_path, unit=unit, check=check)
@@ -38,11 +39,13 @@ def load_model(input_path: Path, unit: str | None, plan, terminal: Terminal, *, 
 
 def commit(plan, terminal: Terminal, stage_all) -> None:
     """Stage every output with ``stage_all(stage) -> notes``, write them together, then
-    say what was written."""
+    show the warnings kept and say what was written. Every command ends here."""
     if not plan.targets:
+        terminal.flush_warnings()
         return
     with plan.transaction() as stage:
         notes = stage_all(stage) or []
+    terminal.flush_warnings()
     terminal.say("")
     for path in plan.written:
         terminal.say(f"wrote {'standard output' if str(path) == '-' else printable(path)}")

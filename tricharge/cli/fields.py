@@ -169,8 +169,8 @@ def view(input_path: Path, unit, volts, png_path, quantity, log_scale, view_name
     if targets["png"] is not None:
         commit(plan, terminal, lambda stage: stage.file(targets["png"],
                                                          lambda path: render_png(picture, path, view=view_name)))
-    elif interactive:
-        terminal.warn("no display: nothing was shown; give --png FILE to write the picture")
+    else:
+        terminal.flush_warnings()
 
 
 @cli.command()

@@ -6,20 +6,25 @@ files into a :class:`SurfaceMesh` in one place: unit conversion, vertex merging 
 surface naming:
 
 * Gmsh physical surface groups keep their names (``group<tag>`` when unnamed; the tag
-  number also works as a reference); OBJ ``g``/``o`` names, the named ``solid`` blocks of
-  an ASCII STL, and a VTK cell-data region array (``region<k>``, or ``k`` as a reference)
-  likewise;
+  number also works as a reference; groups sharing a name form one surface); OBJ
+  ``g``/``o`` names, the named ``solid`` blocks of an ASCII STL, and a VTK cell-data
+  region array (``region<k>``, or ``k`` as a reference) likewise;
 * a file without groups read alone: each connected piece is a surface named
   ``c1, c2, ...`` in the order of each piece's lowest triangle index;
 * several files at once: a file without groups is one surface named after the file
   (``lead1.stl`` gives ``lead1``), so one file per conductor just works.
+
+Before anything is read whole, files are checked against the input limits
+(:mod:`.limits`) and formats read by meshio are pre-scanned for counts that cannot fit and
+compressed data that expand beyond them (:mod:`.gmshscan`, :mod:`.vtkscan`). Polygons
+and quads become triangles that cover them exactly (:mod:`tricharge.polygons`).
 
 meshio and trimesh are imported inside the readers, so importing tricharge stays light.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from functools import partial
 from pathlib import Path
 from typing import Callable
@@ -29,33 +34,28 @@ import numpy as np
 from ..errors import InputFileError, MeshError
 from ..mesh import connected_components, merge_vertices
 from ..model import Conductor, Model
+from ..polygons import PolygonError, triangulate_polygons
 from ..units import metres_per
+from .gmshscan import check_gmsh_counts, physical_names
+from .limits import check_input_file
+from .rawsurface import RawSurface, no_triangles, unreadable
+from .textmeshes import read_obj, read_ply, read_stl
+from .vtkscan import scan_vtk_legacy, scan_vtu
+
+__all__ = ["FORMATS", "MeshFormat", "RawSurface", "SurfaceMesh", "check_input_file", "format_for", "mesh_endings",
+           "read_mesh", "read_raw", "read_surfaces", "read_vtk_xml", "split_polygons", "unit_warnings"]
 
 #: Vertices closer than this fraction of the bounding-box diagonal are merged.
 MERGE_TOLERANCE = 1e-9
 
+#: Most surfaces (groups, or connected pieces of a file without groups) a mesh may have.
+#: Each conductor costs one solve, and the checks compare parts pairwise: measured,
+#: inspecting 300, 1,000 and 3,000 separate triangles takes 0.6, 2.6 and 20 s; 10,000
+#: surfaces is far beyond a real model and still finishes (our choice).
+MAX_SURFACES = 10_000
+
 #: Cell-data arrays that name regions in VTK files, in order of preference.
 REGION_ARRAYS = ("region", "regions", "group", "groups", "conductor", "surface", "CellEntityIds", "gmsh:physical")
-
-
-@dataclass
-class RawSurface:
-    """What a reader found, before conversion.
-
-    points : (n, 3) in file units
-    triangles : (m, 3) int
-    groups : (m,) int index into ``group_names``, or None when the file has no groups
-    group_names : one name per group
-    aliases : other references for a group (e.g. its tag number) -> group name
-    notes : what was skipped or changed, for the user
-    """
-
-    points: np.ndarray
-    triangles: np.ndarray
-    groups: np.ndarray | None = None
-    group_names: list[str] = field(default_factory=list)
-    aliases: dict[str, str] = field(default_factory=dict)
-    notes: list[str] = field(default_factory=list)
 
 
 @dataclass(frozen=True, eq=False)
@@ -81,54 +81,90 @@ class SurfaceMesh:
 _CORNERS = {"triangle": 3, "triangle6": 3, "triangle7": 3, "quad": 4, "quad8": 4, "quad9": 4}
 
 
-def split_polygons(cells: np.ndarray) -> np.ndarray:
-    """Fan-split polygons (k, p) with p >= 3 corners into triangles (k*(p-2), 3)."""
-    cells = np.asarray(cells)
-    p = cells.shape[1]
-    fans = [cells[:, [0, i, i + 1]] for i in range(1, p - 1)]
-    return np.stack(fans, axis=1).reshape(-1, 3)
-
-
-def _unreadable(path: Path, kind: str, exc: BaseException) -> InputFileError:
-    detail = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
-    return InputFileError(f"{path}: not a readable {kind} file ({detail[:200]}); check the export settings")
-
-
-def _no_triangles(path: Path, found: str) -> MeshError:
-    return MeshError(f"{path}: the mesh has no triangles ({found}); export the surfaces as a triangle mesh")
+def split_polygons(cells: np.ndarray, points: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Triangles (t, 3) covering polygons ``cells`` (k, p) exactly, and the polygon of
+    each (t,): quads by their inside diagonal, larger polygons by ear clipping (see
+    :mod:`tricharge.polygons`). Raises PolygonError for a polygon that cannot be split."""
+    return triangulate_polygons(points, cells)
 
 
 # -- readers ---------------------------------------------------------------------------
 
+def _block_triangles(path: Path, block, points: np.ndarray):
+    """Triangles and owning cell of one meshio block, or None for cells without area."""
+    data = np.asarray(block.data)
+    if block.type in _CORNERS:
+        data = data[:, : _CORNERS[block.type]]
+    elif not (block.type.startswith("polygon") and data.ndim == 2 and data.shape[1] >= 3):
+        return None
+    if data.size and (data.min() < 0 or data.max() >= len(points)):
+        raise MeshError(f"{path}: {block.type} cells refer to points that do not exist (indices up to {data.max()}, "
+                        f"{len(points)} points); the file is truncated or corrupt")
+    try:
+        return split_polygons(data, points)
+    except PolygonError as exc:
+        raise MeshError(f"{path}: {block.type} cell {exc.polygon} {exc.reason}; split it into triangles or fix it in "
+                        "the exporter") from None
+
+
 def _meshio_blocks(mesh, path: Path, tag_arrays):
     """Triangles per meshio cell block, the per-triangle tag, and ignored cell kinds."""
     tris, tags, ignored = [], [], []
+    points = _points(path, mesh)
     for b, block in enumerate(mesh.cells):
-        data = np.asarray(block.data)
-        if block.type in _CORNERS:
-            t = split_polygons(data[:, : _CORNERS[block.type]])
-        elif block.type.startswith("polygon") and data.ndim == 2 and data.shape[1] >= 3:
-            t = split_polygons(data)
-        else:
+        found = _block_triangles(path, block, points)
+        if found is None:
             ignored.append(block.type)
             continue
-        tris.append(t)
+        tris.append(found[0])
         if tag_arrays is not None:
-            tags.append(np.repeat(np.asarray(tag_arrays[b]).reshape(len(data), -1)[:, 0], len(t) // max(len(data), 1)))
-    if not tris:
-        raise _no_triangles(path, "found " + (", ".join(sorted(set(ignored))) or "no cells"))
+            values = np.asarray(tag_arrays[b])
+            if values.size % max(len(block.data), 1) or values.size < len(block.data):
+                raise InputFileError(f"{path}: a cell-data array has {values.size} values for {len(block.data)} "
+                                     f"{block.type} cells; the file is inconsistent, export it again")
+            tags.append(values.reshape(len(block.data), -1)[:, 0][found[1]])
+    if not tris or not sum(len(t) for t in tris):
+        raise no_triangles(path, "found " + (", ".join(sorted(set(ignored))) or "no cells"))
     notes = [f"{path.name}: ignored {', '.join(sorted(set(ignored)))} cells"] if ignored else []
     return np.concatenate(tris), (np.concatenate(tags).astype(np.int64) if tag_arrays is not None else None), notes
 
 
 def _groups_from_tags(tags: np.ndarray, names_by_tag: dict[int, str], prefix: str):
-    """Group index per triangle in first-appearance order, names, and tag aliases."""
-    _, first = np.unique(tags, return_index=True)
-    ordered = tags[np.sort(first)]
-    lookup = {int(tag): k for k, tag in enumerate(ordered)}
-    names = [names_by_tag.get(int(tag), f"{prefix}{int(tag)}") for tag in ordered]
-    aliases = {str(int(tag)): name for tag, name in zip(ordered, names)}
-    return np.array([lookup[int(x)] for x in tags], dtype=np.int64), names, aliases
+    """Group index per triangle in first-appearance order, names, tag aliases, and the
+    tags merged because they share a name ({name: [tags]}).
+
+    Tags with the same name form one group (its tags all stay aliases of it): a name is
+    how a user refers to a surface, so two groups named alike mean one surface. Unnamed
+    tags get ``<prefix><tag>`` and are never merged.
+    """
+    unique, first = np.unique(tags, return_index=True)
+    order = np.argsort(first)  # the unique tags in first-appearance order
+    ordered = [int(tag) for tag in unique[order]]
+    keys = [("name", names_by_tag[tag]) if tag in names_by_tag else ("tag", tag) for tag in ordered]
+    group_of_key = {}
+    for key in keys:
+        group_of_key.setdefault(key, len(group_of_key))
+    names = [value if kind == "name" else f"{prefix}{value}" for kind, value in group_of_key]
+    group_of_unique = np.empty(len(unique), dtype=np.int64)
+    group_of_unique[order] = [group_of_key[key] for key in keys]
+    aliases = {str(tag): names[group_of_key[key]] for tag, key in zip(ordered, keys)}
+    merged = {}
+    for tag, key in zip(ordered, keys):
+        merged.setdefault(names[group_of_key[key]], []).append(tag)
+    merged = {name: found for name, found in merged.items() if len(found) > 1}
+    return group_of_unique[np.searchsorted(unique, tags)], names, aliases, merged
+
+
+def _points(path: Path, mesh) -> np.ndarray:
+    """(n, 3) float64 points of a meshio mesh (2D points get z = 0)."""
+    try:
+        points = np.asarray(mesh.points, dtype=np.float64)
+    except (TypeError, ValueError) as exc:
+        raise unreadable(path, path.suffix.lstrip(".").upper(), exc) from None
+    if points.ndim != 2 or not 1 <= points.shape[1]:
+        raise InputFileError(f"{path}: the points are not a table of coordinates (shape {points.shape}); export it "
+                             "again")
+    return np.pad(points[:, :3], ((0, 0), (0, max(0, 3 - points.shape[1]))))
 
 
 def _read_with_meshio(path: Path, module: str, kind: str):
@@ -139,17 +175,36 @@ def _read_with_meshio(path: Path, module: str, kind: str):
     try:
         return reader(str(path))
     except Exception as exc:  # meshio raises many types; all mean "cannot read this file"
-        raise _unreadable(path, kind, exc) from None
+        raise unreadable(path, kind, exc) from None
+
+
+def _surface_names(path: Path) -> tuple[dict[int, str], dict[str, str], list[str]]:
+    """Names of the physical surfaces (dimension 2) by tag, read from $PhysicalNames
+    ourselves; other names given to a tag twice become aliases; notes on those."""
+    names, extra, notes = {}, {}, []
+    for dim, tag, name in physical_names(path):
+        if dim != 2:
+            continue
+        if tag in names and names[tag] != name:
+            extra[names[tag]] = name
+            notes.append(f"{path.name}: physical surface {tag} is named both '{names[tag]}' and '{name}'; it is "
+                         f"'{name}', and '{names[tag]}' refers to it too")
+        names[tag] = name
+    return names, extra, notes
 
 
 def _read_gmsh(path: Path) -> RawSurface:
+    check_gmsh_counts(path)
+    names, extra, name_notes = _surface_names(path)
     mesh = _read_with_meshio(path, "gmsh", "Gmsh")
     physical = mesh.cell_data.get("gmsh:physical")
     triangles, tags, notes = _meshio_blocks(mesh, path, physical)
-    raw = RawSurface(np.asarray(mesh.points, float)[:, :3], triangles, notes=notes)
+    raw = RawSurface(_points(path, mesh), triangles, notes=notes + name_notes)
     if tags is not None:
-        names = {int(v[0]): name for name, v in mesh.field_data.items() if len(v) > 1 and int(v[1]) == 2}
-        raw.groups, raw.group_names, raw.aliases = _groups_from_tags(tags, names, "group")
+        raw.groups, raw.group_names, raw.aliases, merged = _groups_from_tags(tags, names, "group")
+        raw.aliases.update({alias: target for alias, target in extra.items() if target in raw.group_names})
+        raw.notes += [f"{path.name}: physical surfaces {', '.join(map(str, found))} share the name '{name}' and "
+                      "form one surface" for name, found in merged.items()]
     return raw
 
 
@@ -164,115 +219,17 @@ def _region_array(mesh):
 
 
 def _read_vtk(path: Path, module: str, kind: str) -> RawSurface:
+    if module == "vtu" and scan_vtu(path)[1] == 0:
+        raise no_triangles(path, "its pieces declare 0 cells")
+    if module == "vtk":
+        scan_vtk_legacy(path)
     mesh = _read_with_meshio(path, module, kind)
     name = _region_array(mesh)
     triangles, tags, notes = _meshio_blocks(mesh, path, mesh.cell_data[name] if name else None)
-    raw = RawSurface(np.asarray(mesh.points, float)[:, :3], triangles, notes=notes)
+    raw = RawSurface(_points(path, mesh), triangles, notes=notes)
     if tags is not None:
-        raw.groups, raw.group_names, raw.aliases = _groups_from_tags(tags, {}, "region")
+        raw.groups, raw.group_names, raw.aliases, _ = _groups_from_tags(tags, {}, "region")
         raw.notes.append(f"{path.name}: regions from cell-data array '{name}'")
-    return raw
-
-
-def _read_trimesh(path: Path) -> RawSurface:
-    import trimesh
-
-    try:
-        mesh = trimesh.load_mesh(path, process=False)
-    except Exception as exc:
-        raise _unreadable(path, path.suffix.lstrip(".").upper(), exc) from None
-    faces = np.asarray(getattr(mesh, "faces", np.zeros((0, 3))))
-    if faces.size == 0:
-        raise _no_triangles(path, "no faces found")
-    return RawSurface(np.asarray(mesh.vertices, float), faces)
-
-
-def _read_stl(path: Path) -> RawSurface:
-    """STL, binary or ASCII. ASCII files with several named ``solid`` blocks give one
-    group per solid. Vertices are per facet here; merging happens later."""
-    data = path.read_bytes()
-    if len(data) >= 84:
-        count = int.from_bytes(data[80:84], "little")
-        if len(data) == 84 + 50 * count:
-            records = np.frombuffer(data, dtype=np.uint8, offset=84).reshape(count, 50)
-            xyz = records[:, 12:48].copy().view("<f4").reshape(count, 3, 3).astype(np.float64)
-            return RawSurface(xyz.reshape(-1, 3), np.arange(3 * count, dtype=np.int64).reshape(count, 3))
-        if not data.lstrip().startswith(b"solid"):
-            raise InputFileError(f"{path}: binary STL declares {count:,} triangles ({84 + 50 * count:,} bytes) but the "
-                                 f"file has {len(data):,} bytes; it is truncated or not an STL file")
-    try:
-        text = data.decode("ascii")
-    except UnicodeDecodeError:
-        raise InputFileError(f"{path}: neither a binary STL (size does not match its triangle count) nor an ASCII "
-                             "STL (not text); export it again") from None
-    vertices, solids, names = [], [], []
-    for number, line in enumerate(text.splitlines(), start=1):
-        parts = line.split()
-        if not parts:
-            continue
-        if parts[0] == "solid":
-            names.append(" ".join(parts[1:]) or f"solid{len(names) + 1}")
-        elif parts[0] == "vertex":
-            try:
-                vertices.append([float(x) for x in parts[1:4]])
-            except ValueError:
-                raise InputFileError(f"{path}: line {number} is not a valid STL vertex: {line.strip()[:60]!r}") from None
-            if len(vertices[-1]) != 3:
-                raise InputFileError(f"{path}: line {number}: a vertex needs three coordinates")
-            solids.append(max(len(names) - 1, 0))
-    if len(vertices) % 3:
-        raise InputFileError(f"{path}: {len(vertices)} vertices is not a whole number of triangles; the file is "
-                             "truncated")
-    if not vertices:
-        raise _no_triangles(path, "no facets found")
-    m = len(vertices) // 3
-    raw = RawSurface(np.array(vertices, float), np.arange(3 * m, dtype=np.int64).reshape(m, 3))
-    solid_of_triangle = np.array(solids[::3], dtype=np.int64)
-    if len(set(names)) > 1 and len(set(names)) == len(names):
-        raw.groups, raw.group_names = solid_of_triangle, names
-    return raw
-
-
-def _read_obj(path: Path) -> RawSurface:
-    """Wavefront OBJ: ``v`` and ``f`` records (any polygon, ``v/vt/vn`` and negative
-    indices), grouped by the latest ``g`` name, else the latest ``o`` name."""
-    points, triangles, groups, names = [], [], [], {}
-    current = None
-    try:
-        text = path.read_text(encoding="utf-8", errors="replace")
-    except OSError as exc:
-        raise InputFileError(f"{path}: cannot be read ({exc.strerror}); check permissions") from None
-    for number, line in enumerate(text.splitlines(), start=1):
-        parts = line.split()
-        if not parts or parts[0].startswith("#"):
-            continue
-        try:
-            if parts[0] == "v":
-                points.append([float(x) for x in parts[1:4]])
-                if len(points[-1]) != 3:
-                    raise ValueError("a vertex needs three coordinates")
-            elif parts[0] == "f":
-                idx = [int(p.split("/")[0]) for p in parts[1:]]
-                if len(idx) < 3:
-                    raise ValueError("a face needs at least three vertices")
-                idx = [i - 1 if i > 0 else len(points) + i for i in idx]
-                group = names.setdefault(current or "", len(names))
-                for k in range(1, len(idx) - 1):
-                    triangles.append((idx[0], idx[k], idx[k + 1]))
-                    groups.append(group)
-            elif parts[0] in ("g", "o"):
-                label = " ".join(parts[1:]) or None
-                if parts[0] == "g" or label is not None:
-                    current = label
-        except ValueError as exc:
-            raise InputFileError(f"{path}: line {number} is not valid OBJ ({exc}); check the export") from None
-    if not triangles:
-        raise _no_triangles(path, "no faces found")
-    raw = RawSurface(np.array(points, float).reshape(-1, 3), np.array(triangles, np.int64))
-    if len(names) > 1 or "" not in names:
-        ordered = sorted(names, key=names.get)
-        raw.groups = np.array(groups, np.int64)
-        raw.group_names = [n or "ungrouped" for n in ordered]
     return raw
 
 
@@ -288,9 +245,9 @@ class MeshFormat:
 #: Registry: add a format by appending one record.
 FORMATS: list[MeshFormat] = [
     MeshFormat("Gmsh", (".msh",), _read_gmsh),
-    MeshFormat("STL", (".stl",), _read_stl),
-    MeshFormat("Wavefront OBJ", (".obj",), _read_obj),
-    MeshFormat("PLY", (".ply",), _read_trimesh),
+    MeshFormat("STL", (".stl",), read_stl),
+    MeshFormat("Wavefront OBJ", (".obj",), read_obj),
+    MeshFormat("PLY", (".ply",), read_ply),
     MeshFormat("VTK legacy", (".vtk",), partial(_read_vtk, module="vtk", kind="VTK")),
     MeshFormat("VTK XML", (".vtu",), partial(_read_vtk, module="vtu", kind="VTU")),
 ]
@@ -309,17 +266,6 @@ def format_for(path: Path) -> MeshFormat:
                          f"{', '.join(mesh_endings())} and model files (.toml)")
 
 
-def check_input_file(path: Path) -> Path:
-    """A readable, non-empty regular file, or an InputFileError saying what is wrong."""
-    if path.is_dir():
-        raise InputFileError(f"{path}: is a folder, not a file; give the mesh or model file inside it")
-    if not path.is_file():
-        raise InputFileError(f"{path}: file not found; check the path")
-    if path.stat().st_size == 0:
-        raise InputFileError(f"{path}: the file is empty; export it again")
-    return path
-
-
 def read_raw(path) -> RawSurface:
     """Read one mesh file with the reader its ending selects."""
     path = Path(path)
@@ -328,6 +274,8 @@ def read_raw(path) -> RawSurface:
     raw = fmt.reader(path)
     raw.points = np.asarray(raw.points, dtype=np.float64).reshape(-1, 3)
     raw.triangles = np.asarray(raw.triangles).reshape(-1, 3)
+    if not len(raw.triangles):  # every reader says why; this catches what none foresaw
+        raise no_triangles(path, f"{len(raw.points)} points but no faces")
     if not np.issubdtype(raw.triangles.dtype, np.integer):
         raise MeshError(f"{path}: triangle indices are not integers")
     if raw.triangles.size and (raw.triangles.min() < 0 or raw.triangles.max() >= len(raw.points)):
@@ -388,6 +336,10 @@ def read_surfaces(paths, *, unit: str = "m") -> SurfaceMesh:
     scale = metres_per(unit)
     raws = [read_raw(p) for p in paths]
     points, triangles, index, names, aliases, notes = _combine(raws, paths)
+    if len(names) > MAX_SURFACES:
+        raise MeshError(f"{', '.join(str(p) for p in paths)}: the mesh has {len(names):,} surfaces (named groups, or "
+                        f"separate pieces when there are no groups), more than the {MAX_SURFACES:,} tricharge handles; "
+                        "join the pieces of each conductor into one named group (Gmsh physical group, OBJ g)")
     points = points * scale
     source = ", ".join(str(p) for p in paths)
     if len(raws) > 1:  # vertices shared between files
@@ -395,22 +347,51 @@ def read_surfaces(paths, *, unit: str = "m") -> SurfaceMesh:
     return SurfaceMesh(points, triangles, index, names, aliases, notes, source, tuple(str(p) for p in paths))
 
 
-def read_mesh(paths, *, unit: str = "m", check: bool = True) -> Model:
+#: Without a unit, a model at least this many metres across (bounding-box diagonal) is
+#: reported as possibly in millimetres: the parts tricharge is made for (packages,
+#: boards, insulators) are centimetres to decimetres, so their millimetre coordinates
+#: read as metres come out 1 m to 1 km across, while a real model of a metre or more
+#: is rare and only gets a harmless warning (common practice, no source).
+UNITLESS_WARNING_SIZE = 1.0
+
+
+def unit_warnings(source: str, vertices: np.ndarray, triangles: np.ndarray, fix: str) -> tuple[str, ...]:
+    """The warning for coordinates read as metres for want of a unit when the model is
+    UNITLESS_WARNING_SIZE or more across; ``fix`` says how to give the unit."""
+    used = vertices[np.unique(triangles)] if len(triangles) else vertices[:0]
+    if not used.size or not np.isfinite(used).all():
+        return ()
+    with np.errstate(over="ignore"):
+        diagonal = float(np.linalg.norm(np.ptp(used, axis=0)))
+    if not UNITLESS_WARNING_SIZE <= diagonal < np.inf:
+        return ()
+    return (f"{source}: no unit given, coordinates read as metres: the model is {diagonal:.3g} m across; if they "
+            f"are millimetres, {fix}",)
+
+
+def read_mesh(paths, *, unit: str | None = None, check: bool = True) -> Model:
     """Read mesh file(s) into a model where every surface is a conductor of the same name.
+
+    ``unit`` None reads metres and warns (``Model.warnings``) when the model is so large
+    that the coordinates are probably millimetres.
 
     Raises
     ------
     InputFileError for a missing, unreadable or unknown file; MeshError for a file
     without usable triangles or with invalid geometry. Messages start with the file name.
     """
-    mesh = read_surfaces(paths, unit=unit)
+    mesh = read_surfaces(paths, unit=unit or "m")
     conductors = tuple(Conductor(name, (name,)) for name in mesh.surfaces)
+    warnings = () if unit else unit_warnings(mesh.source, mesh.vertices, mesh.triangles, "add --unit mm")
     return Model(mesh.vertices, mesh.triangles, mesh.surface_index, mesh.surfaces, conductors,
-                 unit=unit, source=mesh.source, notes=mesh.notes, inputs=mesh.paths, check=check)
+                 unit=unit or "m", source=mesh.source, notes=mesh.notes, warnings=warnings, inputs=mesh.paths,
+                 check=check)
 
 
 def read_vtk_xml(path):
     """A VTK XML unstructured grid (.vtu) read with meshio after the same checks as a
-    mesh input (exists, not empty); returns the meshio mesh."""
+    mesh input (exists, not empty, within the size limits, not hostile: see
+    :func:`~tricharge.io.vtkscan.scan_vtu`); returns the meshio mesh."""
     path = check_input_file(Path(path))
+    scan_vtu(path)
     return _read_with_meshio(path, "vtu", "VTU")

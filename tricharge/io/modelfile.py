@@ -33,13 +33,17 @@ given, and ``c1, c2, ...`` for the connected pieces of a single file without gro
 from __future__ import annotations
 
 import difflib
+import math
+import os
 import tomllib
 from pathlib import Path
 
 from ..errors import OptionError, TrichargeError
-from ..model import VACUUM, Conductor, Interface, Medium, Model
+from ..mesh import MAX_COORDINATE
+from ..model import MAX_PERMITTIVITY, VACUUM, Conductor, Interface, Medium, Model
 from ..units import LENGTH_UNITS, metres_per, parse_quantity
-from .meshes import check_input_file, read_surfaces
+from .limits import check_input_file, read_limited
+from .meshes import read_surfaces, unit_warnings
 
 TOP_KEYS = ("mesh", "unit", "background", "ground", "media", "conductors", "interfaces")
 GROUND_KEYS = ("z",)
@@ -90,24 +94,55 @@ def _resolve(path: Path, where: str, names: list[str], surfaces: tuple[str, ...]
 
 
 def _read_toml(path: Path) -> dict:
-    check_input_file(path)
+    check_input_file(path, "model")
     try:
-        return tomllib.loads(path.read_text(encoding="utf-8"))
+        return tomllib.loads(read_limited(path, "model").decode("utf-8"))
     except UnicodeDecodeError:
         raise ModelFileError(f"{path}: is not a text file; a model file is TOML text") from None
     except tomllib.TOMLDecodeError as exc:
         raise ModelFileError(f"{path}: is not valid TOML ({exc}); fix the syntax") from None
+    except RecursionError:  # tomllib recurses once per level of nested arrays and tables
+        raise ModelFileError(f"{path}: arrays or tables are nested too deeply to read; a model file needs at most "
+                             "three levels, simplify it") from None
+
+
+def _number(path: Path, where: str, value, description: str) -> float:
+    """A TOML number as a float: integers too large for a float and non-finite values
+    (TOML's inf and nan) are refused, naming the key."""
+    number = _expect(path, where, value, (int, float), description)
+    try:
+        number = float(number)
+    except OverflowError:
+        number = math.inf
+    if not math.isfinite(number):
+        raise ModelFileError(f"{path}: '{where}' is {str(value)[:40]}; it must be {description}, a finite number")
+    return number
 
 
 def _media(path: Path, data: dict) -> tuple[Medium, ...]:
     table = _expect(path, "media", data.get("media", {}), dict, "a table of name = relative permittivity")
     media = []
     for name, value in table.items():
-        eps = _expect(path, f"media.{name}", value, (int, float), "a relative permittivity (a number >= 1)")
-        if not eps >= 1.0:
-            raise ModelFileError(f"{path}: 'media.{name}' is {eps}; a relative permittivity must be >= 1")
-        media.append(Medium(name, float(eps)))
+        eps = _number(path, f"media.{name}", value, "a relative permittivity (a number >= 1)")
+        if not 1.0 <= eps <= MAX_PERMITTIVITY:
+            raise ModelFileError(f"{path}: 'media.{name}' is {value}; a relative permittivity must be >= 1 "
+                                 f"and at most {MAX_PERMITTIVITY:g}")
+        media.append(Medium(name, eps))
     return tuple(media)
+
+
+def _quantity(path: Path, where: str, value, unit: str) -> float:
+    """A voltage or charge (number or text like '3.3 V') in base units; anything
+    unusable is a ModelFileError naming ``where``."""
+    try:
+        number = parse_quantity(value, unit, what=f"{path}: '{where}'")
+    except OptionError as exc:
+        raise ModelFileError(str(exc)) from None
+    except OverflowError:  # an integer too large for a float
+        number = math.inf
+    if not math.isfinite(number):
+        raise ModelFileError(f"{path}: '{where}' is {str(value)[:40]}; give a finite number of {unit}")
+    return number
 
 
 def _conductor(path, name, spec, surfaces, aliases, known_media):
@@ -132,11 +167,8 @@ def _conductor(path, name, spec, surfaces, aliases, known_media):
                                  f"({', '.join(sorted(known_media))}); add it under [media]")
     floating = _expect(path, where + ".floating", spec.get("floating", False), bool, "true or false")
     volts = spec.get("volts")
-    try:
-        voltage = None if volts is None else parse_quantity(volts, "V", what=f"{path}: '{where}.volts'")
-        charge = parse_quantity(spec.get("net_charge", 0.0), "C", what=f"{path}: '{where}.net_charge'")
-    except OptionError as exc:
-        raise ModelFileError(str(exc)) from None
+    voltage = None if volts is None else _quantity(path, where + ".volts", volts, "V")
+    charge = _quantity(path, where + ".net_charge", spec.get("net_charge", 0.0), "C")
     if floating and voltage is not None:
         raise ModelFileError(f"{path}: conductor '{name}' is floating and has volts; remove one of them")
     if "net_charge" in spec and not floating:
@@ -180,11 +212,11 @@ def load_model_file(path, *, unit: str | None = None, check: bool = True) -> Mod
     _check_keys(path, "ground.", ground, GROUND_KEYS)
     if ground and "z" not in ground:
         raise ModelFileError(f"{path}: [ground] needs z = height of the plane, in {file_unit}")
-    ground_z = None
-    if "z" in ground:
-        ground_z = _expect(path, "ground.z", ground["z"], (int, float), f"a height in {file_unit}") * metres_per(file_unit)
+    ground_z = None if "z" not in ground else _height(path, ground["z"], file_unit)
 
-    mesh = read_surfaces([path.parent / m for m in meshes], unit=file_unit)
+    mesh = _read_meshes(path, meshes, file_unit)
+    warnings = () if "unit" in data or unit else unit_warnings(str(path), mesh.vertices, mesh.triangles,
+                                                                'add unit = "mm" to the file')
     interfaces = []
     for name, spec in _expect(path, "interfaces", data.get("interfaces", {}), dict, "a table").items():
         where = f"interfaces.{name}"
@@ -216,7 +248,34 @@ def load_model_file(path, *, unit: str | None = None, check: bool = True) -> Mod
             conductor_media.update(media_map)
     return Model(mesh.vertices, mesh.triangles, mesh.surface_index, mesh.surfaces, tuple(conductors),
                  tuple(interfaces), media, background, conductor_media, ground_z, file_unit,
-                 str(path), mesh.notes, inputs=(str(path),) + mesh.paths, check=check)
+                 str(path), mesh.notes, warnings, inputs=(str(path),) + mesh.paths, check=check)
+
+
+def _read_meshes(path: Path, meshes: list[str], unit: str):
+    """The mesh files of a model file (relative to it) as one SurfaceMesh; their errors
+    name the model file first."""
+    seen = set()
+    for name in meshes:
+        if "\0" in name or not name.strip():
+            raise ModelFileError(f"{path}: 'mesh' names {name[:80]!r}, which is not a file name; give the mesh file "
+                                 "relative to this file")
+        if name in seen:
+            raise ModelFileError(f"{path}: 'mesh' names {name[:80]!r} twice; name every mesh file once")
+        seen.add(name)
+    try:
+        return read_surfaces([path.parent / m for m in meshes], unit=unit)
+    except TrichargeError as exc:  # the mesh file's own error, said to come from this model file
+        exc.args = (f"{path}: {exc}",)
+        raise
+
+
+def _height(path: Path, value, unit: str) -> float:
+    """[ground] z in metres: finite and within MAX_COORDINATE of the origin."""
+    z = _number(path, "ground.z", value, f"a height in {unit}") * metres_per(unit)
+    if abs(z) > MAX_COORDINATE:
+        raise ModelFileError(f"{path}: 'ground.z' is {value} {unit}, beyond any real device; give a height within "
+                             f"{MAX_COORDINATE / metres_per(unit):g} {unit} of the origin")
+    return z
 
 
 def load(path, *, unit: str | None = None, check: bool = True) -> Model:
@@ -226,7 +285,11 @@ def load(path, *, unit: str | None = None, check: bool = True) -> Model:
     """
     from .meshes import read_mesh
 
-    path = Path(path)
+    if not isinstance(path, (str, bytes, os.PathLike)):
+        raise OptionError(f"load() needs a file name (text or a path), got {type(path).__name__}")
+    if unit is not None and not isinstance(unit, str):
+        raise OptionError(f"unit must be one of {', '.join(LENGTH_UNITS)} (text), got {unit!r}")
+    path = Path(os.fsdecode(path))
     if path.suffix.lower() == ".toml":
         return load_model_file(path, unit=unit, check=check)
-    return read_mesh(path, unit=unit or "m", check=check)
+    return read_mesh(path, unit=unit, check=check)

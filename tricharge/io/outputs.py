@@ -71,6 +71,18 @@ def spice_circuit(result, origin: dict, drop_below: float):
                       tolerance=result.mutual_tolerance)
 
 
+def array_label(name: str) -> str:
+    """A conductor name as part of a VTK array name: letters, digits, ``_ . + -`` kept,
+    everything else (spaces, markup, control characters, undecodable bytes) as ``_``.
+
+    >>> array_label("lead 1"), array_label("<b>")
+    ('lead_1', '_b_')
+    """
+    import re
+
+    return re.sub(r"[^0-9A-Za-z_.+-]", "_", str(name))
+
+
 def stage_solve(stage, targets: dict, result, full, model, origin: dict, *, form: str = "maxwell",
                 drop_below: float = 0.0) -> list[str]:
     """Stage the files of a solve: ``targets`` maps json, spice, csv, npz, vtu to a
@@ -101,8 +113,10 @@ def stage_solve(stage, targets: dict, result, full, model, origin: dict, *, form
     if targets.get("vtu") is not None:
         data = {"conductor": full.panel_conductor, "area_m2": full.panel_areas}
         for k, name in enumerate(full.conductors):
-            data[f"sigma_C_per_m2_{name}_at_1V"] = full.sigma[:, k]
-            data[f"E_normal_V_per_m_{name}_at_1V"] = np.where(full.panel_conductor >= 0, full.sigma[:, k] / EPS0, np.nan)
+            label = array_label(name)
+            data[f"sigma_C_per_m2_{label}_at_1V"] = full.sigma[:, k]
+            data[f"E_normal_V_per_m_{label}_at_1V"] = np.where(full.panel_conductor >= 0, full.sigma[:, k] / EPS0,
+                                                               np.nan)
         unit = {"metres_per_unit": metres_per(model.unit)}  # coordinates are metres; the user's unit recorded
         stage.file(targets["vtu"], lambda path: write_vtu(path, model.vertices, model.triangles, data, unit))
     return notes
