@@ -97,7 +97,10 @@ def parse_field_strength(value, *, what: str = "field strength") -> float:
     import re
 
     if isinstance(value, (int, float)) and not isinstance(value, bool):
-        number = float(value)
+        try:
+            number = float(value)
+        except OverflowError:
+            number = float("inf")
     else:
         match = re.fullmatch(r"\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*([A-Za-z/]*)\s*", str(value))
         if not match or (match.group(2) or "V/m") not in _FIELD_UNITS:

@@ -66,22 +66,42 @@ class LocalInverse(LinearOperator):
         return self.matrix @ x
 
 
-class SystemPreconditioner(LinearOperator):
-    """Preconditioner for the general system (:class:`~tricharge.bem.system.FastSystem`):
-    :class:`LocalInverse` on the conductor panels' single layer (images ignored),
-    ``1 / (2 pi)`` on interface rows (their diagonal), identity on floating rows."""
+class GeneralLocalInverse(LinearOperator):
+    """Sparse approximate inverse of the whole general system (:class:`~tricharge.bem.system.FastSystem`).
+
+    As :class:`LocalInverse`, from local problems over each panel's ``k`` nearest
+    panels, but of the system's own rows whatever the panels are: conductor rows
+    (potential, with the plane's images) and interface rows (``2 pi s_i`` plus the
+    contrast times the normal field, with images and Gauss self terms) side by side, so
+    the coupling between a conductor and the dielectric skin around it is inverted
+    locally. Entries are the operator's: its one-point far rule plus its stored near
+    corrections. Floating-conductor rows are left as they are (identity).
+    """
 
     def __init__(self, system, k: int = LOCAL_INVERSE_SIZE):
-        from types import SimpleNamespace
-
-        from .panels import Panels
+        from scipy import sparse
+        from scipy.spatial import cKDTree
 
         panels = system.panels
-        self.rows_c, self.rows_i = system.rows_c, system.rows_i
-        self.local = None
-        if len(self.rows_c):
-            conductor_panels = Panels(panels.vertices, panels.triangles[self.rows_c])
-            self.local = LocalInverse(SimpleNamespace(panels=conductor_panels, policy=system.policy), k)
+        n = len(panels)
+        k = int(min(k, n))
+        _, neighbours = cKDTree(panels.centroids).query(panels.centroids, k=k)
+        neighbours = neighbours.reshape(n, k).astype(np.int64)
+        position = np.full((2, n), -1, dtype=np.int64)
+        position[0, system.rows_c] = np.arange(len(system.rows_c))
+        position[1, system.rows_i] = np.arange(len(system.rows_i))
+        rows = np.empty((n, k))
+        for s in range(0, n, 4096):
+            nb = neighbours[s : s + 4096]
+            a = np.repeat(nb, k, axis=1).reshape(-1)  # row panel of every local entry
+            b = np.tile(nb, (1, k)).reshape(-1)  # column panel
+            local = _system_entries(system, a, b, position).reshape(-1, k, k)
+            unit = np.zeros((len(nb), k))
+            unit[:, 0] = 1.0
+            rows[s : s + 4096] = np.linalg.solve(np.transpose(local, (0, 2, 1)), unit[:, :, None])[:, :, 0]
+        self.n = n
+        self.matrix = sparse.csr_matrix((rows.ravel(), (np.repeat(np.arange(n), k), neighbours.ravel())),
+                                        shape=(n, n))
         super().__init__(dtype=np.float64, shape=system.shape)
 
     def _matvec(self, x):
@@ -90,7 +110,33 @@ class SystemPreconditioner(LinearOperator):
     def _matmat(self, x):
         x = np.asarray(x, dtype=np.float64)
         out = x.copy()
-        if self.local is not None:
-            out[self.rows_c] = self.local.matrix @ x[self.rows_c]
-        out[self.rows_i] = x[self.rows_i] / (2.0 * np.pi)
+        out[: self.n] = self.matrix @ x[: self.n]
         return out
+
+
+def _system_entries(system, a: np.ndarray, b: np.ndarray, position: np.ndarray) -> np.ndarray:
+    """Entries (a[p], b[p]) of a FastSystem's panel block: far rule (one point per panel,
+    images with the opposite charge), stored near corrections, and the interface rows'
+    2 pi diagonal and contrast."""
+    panels, problem = system.panels, system.problem
+    c, areas = panels.centroids, panels.areas
+    diff = c[a] - c[b]
+    r = np.linalg.norm(diff, axis=1)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        potential = np.where(r > 0, areas[b] / r, 0.0)
+        normal_field = np.where(r > 0, areas[b] * np.einsum("pd,pd->p", panels.normals[a], diff) / r**3, 0.0)
+    if problem.images is not None:
+        mirror = problem.images.centroids[b]
+        diff_i = c[a] - mirror
+        r_i = np.linalg.norm(diff_i, axis=1)
+        potential -= areas[b] / r_i
+        normal_field -= areas[b] * np.einsum("pd,pd->p", panels.normals[a], diff_i) / r_i**3
+    out = np.empty(len(a))
+    on_conductor = position[0, a] >= 0
+    rows_c, rows_i = position[0, a[on_conductor]], position[1, a[~on_conductor]]
+    out[on_conductor] = potential[on_conductor] + np.asarray(system.near_c[rows_c, b[on_conductor]]).ravel()
+    contrast = problem.contrast[a[~on_conductor]]
+    near = np.asarray(system.near_i[rows_i, b[~on_conductor]]).ravel()
+    out[~on_conductor] = (contrast * (normal_field[~on_conductor] + near)
+                          + 2.0 * np.pi * (a[~on_conductor] == b[~on_conductor]))
+    return out
