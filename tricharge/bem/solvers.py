@@ -63,8 +63,10 @@ def gmres(operator, b, *, tol: float = 1e-8, restart: int = 50, maxiter: int = 2
 
     Each column has its own Krylov space, but every iteration applies the operator to all
     unconverged columns at once (one multipole pass for K densities is much cheaper than
-    K passes). The residual monitored is the true one of ``A x = b`` (right
-    preconditioning leaves it unchanged).
+    K passes). The residual monitored is the one of ``A x = b`` (right preconditioning
+    leaves it unchanged). The operator is applied once per iteration and never otherwise:
+    a zero start needs no residual pass, and the residual a cycle leaves is formed from
+    its Krylov basis and rotations (the Arnoldi relation) instead of by applying A again.
 
     Parameters
     ----------
@@ -79,7 +81,8 @@ def gmres(operator, b, *, tol: float = 1e-8, restart: int = 50, maxiter: int = 2
 
     Returns
     -------
-    x : (N, K); iterations : (K,) int, inner iterations per column
+    x : (N, K); iterations : (K,) int, inner iterations per column; residuals : (K,)
+    relative residual of every column
     """
     apply_m = (lambda v: v) if preconditioner is None else preconditioner.matmat
     n, k = b.shape
@@ -89,8 +92,8 @@ def gmres(operator, b, *, tol: float = 1e-8, restart: int = 50, maxiter: int = 2
     iterations = np.zeros(k, dtype=int)
     residuals = np.ones(k)
     count = 0
+    r = np.array(b, dtype=np.float64) if x0 is None else b - operator.matmat(x)
     for _ in range(maxiter):
-        r = b - operator.matmat(x)
         beta = np.linalg.norm(r, axis=0)
         residuals = beta / norms
         active = np.flatnonzero(residuals > tol)
@@ -134,8 +137,21 @@ def gmres(operator, b, *, tol: float = 1e-8, restart: int = 50, maxiter: int = 2
         for c in range(ka):
             y = scipy.linalg.solve_triangular(h[c, :m, :m], g[c, :m])
             update[:, c] = basis[:m, :, c].T @ y
+            r[:, active[c]] = basis[: m + 1, :, c].T @ _residual_coordinates(g[c, m], cs[c, :m], sn[c, :m])
         x[:, active] += apply_m(update)
-    return x, iterations
+    residuals = np.linalg.norm(r, axis=0) / norms
+    return x, iterations, residuals
+
+
+def _residual_coordinates(last: float, cs: np.ndarray, sn: np.ndarray) -> np.ndarray:
+    """Coordinates in the Krylov basis of the residual a GMRES cycle leaves: the rotated
+    right-hand side's last entry, rotated back (the transposed Givens rotations in
+    reverse order)."""
+    z = np.zeros(len(cs) + 1)
+    z[-1] = last
+    for i in range(len(cs) - 1, -1, -1):
+        z[i], z[i + 1] = cs[i] * z[i] - sn[i] * z[i + 1], sn[i] * z[i] + cs[i] * z[i + 1]
+    return z
 
 
 def solve_linear(operator: LinearOperator, b, *, tol: float = 1e-8, maxiter: int = 200,
@@ -166,11 +182,11 @@ def solve_linear(operator: LinearOperator, b, *, tol: float = 1e-8, maxiter: int
 
     if isinstance(operator, StoredOperator):
         x, method, iterations = _solve_lu(operator.matrix, b), "lu", 0
+        residual = relative_residual(operator, x, b)  # one matrix product: cheap beside the LU
     else:
-        x, per_column = gmres(operator, b, tol=tol, restart=restart, maxiter=maxiter,
-                              preconditioner=preconditioner, callback=callback, x0=x0)
-        method, iterations = "gmres", int(per_column.max())
-    residual = relative_residual(operator, x, b)
+        x, per_column, residuals = gmres(operator, b, tol=tol, restart=restart, maxiter=maxiter,
+                                         preconditioner=preconditioner, callback=callback, x0=x0)
+        method, iterations, residual = "gmres", int(per_column.max()), float(residuals.max())
     converged = bool(np.isfinite(residual) and residual <= max(tol, 1e-10) * 10)
     solution = LinearSolution(x, method, converged, iterations, residual)
     if not converged and raise_on_failure:
