@@ -18,19 +18,28 @@ from .resources import check_memory
 
 
 def problem_of(model: Model) -> Problem:
-    """The numerical problem of a model: every panel's role, permittivities, plane."""
+    """The numerical problem of a model: every panel's role, permittivities (on both faces
+    of conductor sheets, :mod:`tricharge.sheets`), interface contrasts, the plane."""
+    from .sheets import sheet_faces
+
     panels = make_panels(model.vertices, model.triangles, source=model.source)
     conductor = model.conductor_labels
-    permittivity = np.ones(model.n_panels)
-    contrast = np.zeros(model.n_panels)
-    surface_eps = np.array([model.permittivity(model.medium_of_surface(s)) for s in model.surfaces])
+    faces = sheet_faces(model)
     on_conductor = conductor >= 0
-    permittivity[on_conductor] = surface_eps[model.surface_index[on_conductor]]
+    permittivity = np.where(on_conductor, faces.front, 1.0)
+    contrast = np.zeros(model.n_panels)
     for k, interface in enumerate(model.interfaces):
         outside, inside = model.permittivity(interface.outside), model.permittivity(interface.inside)
         contrast[model.interface_labels == k] = (outside - inside) / (outside + inside)
     floating = np.array([c.floating for c in model.conductors], dtype=bool)
-    return Problem(panels, conductor, permittivity, contrast, floating, model.ground_z, model.conductor_names)
+    two_media = faces.sheet & (faces.behind != faces.front)
+    for k in np.flatnonzero(floating):
+        if two_media[conductor == k].any():
+            raise OptionError(f"{model.source}: conductor '{model.conductors[k].name}' is a floating sheet in an "
+                              "interface between two media, which tricharge cannot solve yet; give it a thickness or "
+                              "a fixed voltage")
+    return Problem(panels, conductor, permittivity, contrast, floating, model.ground_z, model.conductor_names,
+                   permittivity_behind=np.where(faces.sheet, faces.behind, np.nan))
 
 
 def solve(model: Model, *, method: str = "auto", tol: float = 1e-6, progress=None, levels: int = 1,
@@ -290,7 +299,7 @@ def refine_peaks(result: FieldResult, model: Model, *, radius_panels: float = 4.
     vertices, triangles, parent = split_triangles(panels.vertices, panels.triangles, near)
     refined = Problem(make_panels(vertices, triangles, source=model.source), problem.panel_conductor[parent],
                       problem.permittivity[parent], problem.contrast[parent], problem.floating, problem.ground_z,
-                      problem.names)
+                      problem.names, problem.permittivity_behind[parent])
     charge = np.array([c.net_charge for c in model.conductors])
     sigma = solve_voltages(refined, result.potentials, charge, method=method, tol=tol).sigma
     magnitude = surface_field(refined, sigma).magnitude

@@ -179,7 +179,9 @@ def survey_report(model, *, version: str) -> str:
                      f"{p.smallest / scale:.3g}..{p.largest / scale:.3g}", f"{p.worst_aspect:.3g}",
                      "closed" if p.closed else "open (thin sheet)" if p.kind == "conductor" else "open"])
     lines += [""] + _table(rows, right={3, 4, 9})
-    for title, items in (("notes", model.notes), ("warnings", model.warnings + survey.warnings),
+    from .sheets import sheet_faces
+
+    for title, items in (("notes", model.notes + sheet_faces(model).notes), ("warnings", model.warnings + survey.warnings),
                          ("errors", model.problems)):
         if items:
             lines += ["", f"{title}:"] + [f"  - {printable(item)}" for item in items]

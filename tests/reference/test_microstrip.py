@@ -82,7 +82,7 @@ def microstrip(length, eps_r, h=1.0, w=1.0, t=0.02, slab=10.0, step=0.25, edge_c
     return problem_from_arrays(v, t_all, conductor, permittivity, contrast, ground_z=0.0)
 
 
-@pytest.mark.parametrize("eps_r", [1.0, 4.0])
+@pytest.mark.parametrize("eps_r", [pytest.param(1.0, marks=pytest.mark.slow), 4.0])
 def test_microstrip_per_unit_length(eps_r):
     """Measured here: +3.3 % in air (the strip's 0.02 h thickness adds about 1.6 % by the
     same paper's thickness correction), +0.2 % with eps_r = 4."""
@@ -92,8 +92,54 @@ def test_microstrip_per_unit_length(eps_r):
     assert per_length == pytest.approx(hammerstad_jensen(1.0, eps_r), rel=0.05)
 
 
+@pytest.mark.slow
 def test_fast_and_dense_agree_on_the_microstrip():
     problem = microstrip(3.0, 4.0)
     dense = solve_capacitance(problem, method="dense").capacitance[0, 0]
     fast = solve_capacitance(problem, method="fast", tol=1e-7).capacitance[0, 0]
     assert fast == pytest.approx(dense, rel=1e-4)
+
+
+def sheet_microstrip(length, eps_r, w=1.0, h=1.0, margin=5.0, step=0.25, edge_cells=8):
+    """A zero-thickness strip filling the middle of a slab's top face, over the plane z = 0."""
+    ex, ey, ez = np.eye(3)
+    slab = w + 2 * margin
+    n_y, n_z = int(round(length / step)), int(round(h / step))
+    n_side = int(round(margin / step)) + edge_cells
+    bands = [(-slab / 2, -w / 2, n_side), (-w / 2, w / 2, int(round(w / step)) + edge_cells), (w / 2, slab / 2, n_side)]
+    parts = []
+    for k, (x0, x1, n) in enumerate(bands):
+        v, tri = grid_face(np.array([x0, 0.0, h]), (x1 - x0) * ex, length * ey, n, n_y, True)
+        parts.append((v, tri, 0 if k == 1 else 2))
+        for v, tri in (grid_face(np.array([x0, 0.0, 0.0]), (x1 - x0) * ex, h * ez, n, n_z, False),
+                       grid_face(np.array([x0, length, 0.0]), h * ez, (x1 - x0) * ex, n_z, n, False)):
+            parts.append((v, tri, 2))
+    for origin, a, b, na, nb in (((-slab / 2, 0, 0), h * ez, length * ey, n_z, n_y),
+                                 ((slab / 2, 0, 0), length * ey, h * ez, n_y, n_z)):
+        v, tri = grid_face(np.array(origin, float), a, b, na, nb, False)
+        parts.append((v, tri, 2))
+    vs, ts, roles, off = [], [], [], 0
+    for v, tri, role in parts:
+        vs.append(v); ts.append(tri + off); roles.append(np.full(len(tri), role)); off += len(v)
+    v, t = merge_vertices(np.vstack(vs), np.vstack(ts), 1e-9)
+    roles = np.concatenate(roles)
+    conductor = np.where(roles == 0, 0, -1)
+    behind = np.where(roles == 0, eps_r, np.nan)
+    contrast = np.where(roles == 2, (1.0 - eps_r) / (1.0 + eps_r), 0.0)
+    return problem_from_arrays(v, t, conductor, np.ones(len(t)), contrast, ground_z=0.0, permittivity_behind=behind)
+
+
+@pytest.mark.parametrize("eps_r, u", [(1.0, 1.0), (4.0, 1.0), (10.0, 1.0),
+                                      pytest.param(4.0, 5.0, marks=pytest.mark.slow),
+                                      pytest.param(10.0, 5.0, marks=pytest.mark.slow)])
+def test_zero_thickness_microstrip_on_a_substrate(eps_r, u):
+    """The formula's own case: a zero-thickness strip lying in the substrate's top face
+    (a sheet with air in front and the substrate behind; docs/design.md gives its free
+    charge). Hammerstad & Jensen (1980), zero-thickness C' with the same paper's effective
+    permittivity (from memory). Measured: +1.5 % in air (the mesh: 0.25 h panels), -0.2 %
+    to +0.9 % on substrates of eps_r 4 and 10 at u = 1 and 5; accepted within 3.5 %."""
+    lengths = (3.0, 6.0)
+    capacitance = [solve_capacitance(sheet_microstrip(L, eps_r, w=u), method="auto").capacitance[0, 0]
+                   for L in lengths]
+    per_length = (capacitance[1] - capacitance[0]) / (lengths[1] - lengths[0]) / EPS0
+    assert per_length == pytest.approx(hammerstad_jensen(u, eps_r), rel=0.035)

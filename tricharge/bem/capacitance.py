@@ -14,6 +14,7 @@ import numpy as np
 
 from ..errors import SolverError
 from .factory import make_operator, make_preconditioner
+from .fields import free_charge_density
 from .panels import Panels
 from .problem import Problem
 from .results import FOUR_PI_EPS0, SOLVER_ACCURACY, Excitation, Result, check_matrix, maxwell_from_charges
@@ -83,7 +84,7 @@ def solve_capacitance(problem: Problem, *, method: str = "auto", tol: float = 1e
     labels = np.full(n, -1, dtype=np.int64)
     labels[np.isin(problem.panel_conductor, driven)] = np.searchsorted(driven, problem.panel_conductor[np.isin(problem.panel_conductor,
                                                                                                     driven)])
-    free = sigma * np.where(problem.is_conductor_panel, problem.permittivity, 0.0)[:, None]
+    free = free_charge_density(problem, sigma)
     raw = maxwell_from_charges(free, panels.areas, labels, len(driven))
     names = tuple(problem.names[k] for k in driven)
     accuracy = SOLVER_ACCURACY[operator.method]
@@ -136,6 +137,6 @@ def solve_voltages(problem: Problem, voltages, net_charge=None, *, method: str =
     potentials[problem.floating_index] = solution.x[n:, 0]
     free = np.zeros(problem.n_conductors)
     on = problem.is_conductor_panel
-    np.add.at(free, problem.panel_conductor[on], problem.permittivity[on] * sigma[on] * problem.panels.areas[on])
+    np.add.at(free, problem.panel_conductor[on], free_charge_density(problem, sigma)[on] * problem.panels.areas[on])
     return Excitation(sigma, potentials, free, operator.method, solution.converged, solution.iterations,
                       solution.residual)

@@ -301,12 +301,13 @@ def sample_field(points, problem, sigma, potentials, evaluate, surface: SurfaceV
 
 def surface_values(problem, surface, groups) -> SurfaceValues:
     """:class:`SurfaceValues` of a solved problem: on closed conductor skins the outside
-    field ``sigma / eps0`` along the normal (no field inside); on interfaces both sides;
-    unknown on open conductor sheets (their charge is the sum of both faces').
+    field ``sigma / eps0`` along the normal (no field inside); on interfaces and on
+    conductor sheets whose faces the problem knows (``permittivity_behind``) both sides;
+    unknown on other open sheets (their charge is the sum of both faces').
     ``surface`` is a :class:`~tricharge.bem.fields.SurfaceField`, ``groups`` (N,) the
     part of every panel."""
     normal = np.column_stack([surface.outside, surface.inside]).astype(float)
     conductor = problem.panel_conductor >= 0
-    normal[conductor, 1] = np.nan
-    normal[conductor & (closed_skins(problem) < 0)] = np.nan
+    normal[conductor & ~problem.sheet, 1] = np.nan
+    normal[conductor & (closed_skins(problem) < 0) & ~problem.sheet] = np.nan  # a sheet of unknown faces
     return SurfaceValues(problem.panels, groups, normal, surface.tangential_vector)

@@ -80,6 +80,36 @@ def field_at(points, panels: Panels, sigma, *, policy: NearFieldPolicy | None = 
     return _with_images(points, panels, sigma, policy, ("field",), images)[0]
 
 
+def free_charge_density(problem, sigma) -> np.ndarray:
+    """Free charge density (C/m^2) on the conductor panels of a solved problem; 0 elsewhere.
+
+    ``sigma`` (N,) or (N, K) is the total density. A closed conductor skin touching a
+    medium of relative permittivity eps carries ``eps sigma``. A sheet carries the total
+    of both faces: with ``eps_a`` in front (where its normal points) and ``eps_b`` behind,
+    the normal fields on the faces are ``E_pv +- sigma / (2 eps0)`` and the free charge is
+    ``eps0 (eps_a E+ - eps_b E-) = (eps_a + eps_b) / 2 sigma + eps0 (eps_a - eps_b) E_pv``,
+    ``E_pv`` the principal-value normal field of all panels at the sheet (derivation in
+    docs/design.md; for one medium it is ``eps sigma``).
+    """
+    s = np.asarray(sigma, dtype=np.float64)
+    columns = s.reshape(len(problem.panels), -1)
+    out = np.where(problem.is_conductor_panel, problem.permittivity, 0.0)[:, None] * columns
+    rows = np.flatnonzero(problem.two_media)
+    if len(rows):
+        front, behind = problem.permittivity[rows], problem.permittivity_behind[rows]
+        for k in range(columns.shape[1]):
+            normal = _normal_field(problem, columns[:, k], rows)
+            out[rows, k] = 0.5 * (front + behind) * columns[rows, k] + EPS0 * (front - behind) * normal
+    return out.reshape(s.shape)
+
+
+def _normal_field(problem, sigma, rows) -> np.ndarray:
+    """Principal-value normal field (V/m) at the centroids of panels ``rows`` (images included)."""
+    panels = problem.panels
+    e = field_at(panels.centroids[rows], panels, sigma, images=problem.images)
+    return np.einsum("md,md->m", e, panels.normals[rows])
+
+
 @dataclass(frozen=True, repr=False)
 class SurfaceField:
     """The field on every panel, V/m. On conductor panels the field is normal:
@@ -114,6 +144,11 @@ def surface_field(problem, sigma, *, policy: NearFieldPolicy | None = None) -> S
     outside, inside, tangential = np.zeros(n), np.zeros(n), np.zeros((n, 3))
     on = problem.is_conductor_panel
     outside[on] = sigma[on] / EPS0
+    sheets = np.flatnonzero(problem.sheet)
+    if len(sheets):  # both faces: the principal-value field plus or minus half the jump
+        normal = _normal_field(problem, sigma, sheets)
+        outside[sheets] = normal + sigma[sheets] / (2.0 * EPS0)
+        inside[sheets] = normal - sigma[sheets] / (2.0 * EPS0)
     rows = np.flatnonzero(~on)
     if len(rows):
         e = field_at(panels.centroids[rows], panels, sigma, policy=policy, images=problem.images)
@@ -128,8 +163,7 @@ def surface_field(problem, sigma, *, policy: NearFieldPolicy | None = None) -> S
         tangential[rows] = e - normal[:, None] * normals
     size = np.linalg.norm(tangential, axis=1)
     magnitude = np.hypot(np.maximum(np.abs(outside), np.abs(inside)), size)
-    free = np.where(on, problem.permittivity * sigma, 0.0)
-    return SurfaceField(outside, inside, size, magnitude, free, tangential)
+    return SurfaceField(outside, inside, size, magnitude, free_charge_density(problem, sigma), tangential)
 
 
 @dataclass(frozen=True)

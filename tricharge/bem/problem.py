@@ -25,6 +25,9 @@ class Problem:
         conductor panels; ``eps_out`` is on the side the normal points into
     floating : (K,) bool per conductor
     ground_z : height of the grounded plane (metres) or None
+    permittivity_behind : (N,) relative permittivity behind each conductor sheet panel
+        (the face its normal points away from); NaN on closed conductor skins, where the
+        metal is; None when not known (every conductor panel then counts as one medium)
     """
 
     panels: Panels
@@ -34,6 +37,7 @@ class Problem:
     floating: np.ndarray
     ground_z: float | None = None
     names: tuple[str, ...] = field(default_factory=tuple)
+    permittivity_behind: np.ndarray | None = None
 
     @property
     def n_conductors(self) -> int:
@@ -47,6 +51,18 @@ class Problem:
     def floating_index(self) -> np.ndarray:
         """Conductor indices of the floating conductors, in order."""
         return np.flatnonzero(self.floating)
+
+    @cached_property
+    def sheet(self) -> np.ndarray:
+        """(N,) True on conductor sheet panels (known only with ``permittivity_behind``)."""
+        if self.permittivity_behind is None:
+            return np.zeros(len(self.panels), dtype=bool)
+        return self.is_conductor_panel & np.isfinite(self.permittivity_behind)
+
+    @cached_property
+    def two_media(self) -> np.ndarray:
+        """(N,) True on sheet panels with different media on their two faces."""
+        return self.sheet & (np.nan_to_num(self.permittivity_behind) != self.permittivity)
 
     @property
     def conductors_only(self) -> bool:
@@ -64,8 +80,8 @@ class Problem:
         return Panels(mirrored, self.panels.triangles)
 
 def problem_from_arrays(vertices, triangles, panel_conductor, permittivity=None, contrast=None, floating=None,
-                        ground_z=None, names=()) -> Problem:
-    """Convenience constructor (tests, notebooks): arrays in metres."""
+                        ground_z=None, names=(), permittivity_behind=None) -> Problem:
+    """Convenience constructor (tests, notebooks): arrays in metres; see :class:`Problem`."""
     panels = make_panels(vertices, triangles)
     panel_conductor = np.asarray(panel_conductor, dtype=np.int64)
     n = len(panels)
@@ -74,4 +90,5 @@ def problem_from_arrays(vertices, triangles, panel_conductor, permittivity=None,
                    np.ones(n) if permittivity is None else np.asarray(permittivity, float),
                    np.zeros(n) if contrast is None else np.asarray(contrast, float),
                    np.zeros(k, bool) if floating is None else np.asarray(floating, bool),
-                   ground_z, tuple(names) or tuple(f"c{i + 1}" for i in range(k)))
+                   ground_z, tuple(names) or tuple(f"c{i + 1}" for i in range(k)),
+                   None if permittivity_behind is None else np.asarray(permittivity_behind, float))

@@ -144,5 +144,7 @@ def refined_problem(problem, mask=None, *, conforming: bool = True, project=None
     if mask is None:
         mask = np.ones(len(panels), dtype=bool)
     v, t, parent = split_triangles(panels.vertices, panels.triangles, mask, conforming=conforming, project=project)
+    behind = None if problem.permittivity_behind is None else problem.permittivity_behind[parent]
     return replace(problem, panels=make_panels(v, t), panel_conductor=problem.panel_conductor[parent],
-                   permittivity=problem.permittivity[parent], contrast=problem.contrast[parent]), parent
+                   permittivity=problem.permittivity[parent], contrast=problem.contrast[parent],
+                   permittivity_behind=behind), parent

@@ -90,57 +90,69 @@ def gmres(operator, b, *, tol: float = 1e-8, restart: int = 50, maxiter: int = 2
     norms = np.linalg.norm(b, axis=0)
     norms[norms == 0] = 1.0
     iterations = np.zeros(k, dtype=int)
-    residuals = np.ones(k)
-    count = 0
     r = np.array(b, dtype=np.float64) if x0 is None else b - operator.matmat(x)
+    counter = [0]
+
+    def report(active, residuals):
+        counter[0] += 1
+        iterations[active] += 1
+        if callback is not None:
+            everything = np.linalg.norm(r, axis=0) / norms
+            everything[active] = residuals
+            callback(counter[0], everything)
+
     for _ in range(maxiter):
-        beta = np.linalg.norm(r, axis=0)
-        residuals = beta / norms
-        active = np.flatnonzero(residuals > tol)
+        active = np.flatnonzero(np.linalg.norm(r, axis=0) / norms > tol)
         if not len(active):
             break
-        ka = len(active)
-        basis = np.zeros((restart + 1, n, ka))
-        basis[0] = r[:, active] / beta[active]
-        h = np.zeros((ka, restart + 1, restart))
-        g = np.zeros((ka, restart + 1))
-        g[:, 0] = beta[active]
-        cs, sn = np.zeros((ka, restart)), np.zeros((ka, restart))
-        for j in range(restart):
-            w = operator.matmat(apply_m(basis[j]))
-            for i in range(j + 1):  # modified Gram-Schmidt
-                hij = np.einsum("nk,nk->k", basis[i], w)
-                w -= basis[i] * hij
-                h[:, i, j] = hij
-            h[:, j + 1, j] = np.linalg.norm(w, axis=0)
-            with np.errstate(divide="ignore", invalid="ignore"):
-                basis[j + 1] = np.where(h[:, j + 1, j] > 0, w / h[:, j + 1, j], 0.0)
-            for i in range(j):  # previous Givens rotations on the new column
-                hi, hi1 = h[:, i, j].copy(), h[:, i + 1, j].copy()
-                h[:, i, j] = cs[:, i] * hi + sn[:, i] * hi1
-                h[:, i + 1, j] = -sn[:, i] * hi + cs[:, i] * hi1
-            rho = np.hypot(h[:, j, j], h[:, j + 1, j])
-            rho[rho == 0] = 1.0
-            cs[:, j], sn[:, j] = h[:, j, j] / rho, h[:, j + 1, j] / rho
-            h[:, j, j], h[:, j + 1, j] = rho, 0.0
-            g[:, j + 1] = -sn[:, j] * g[:, j]
-            g[:, j] = cs[:, j] * g[:, j]
-            iterations[active] += 1
-            count += 1
-            residuals[active] = np.abs(g[:, j + 1]) / norms[active]
-            if callback is not None:
-                callback(count, residuals.copy())
-            if np.all(residuals[active] <= tol):
-                break
-        m = j + 1
-        update = np.zeros((n, ka))
-        for c in range(ka):
-            y = scipy.linalg.solve_triangular(h[c, :m, :m], g[c, :m])
-            update[:, c] = basis[:m, :, c].T @ y
-            r[:, active[c]] = basis[: m + 1, :, c].T @ _residual_coordinates(g[c, m], cs[c, :m], sn[c, :m])
+        update, r[:, active] = _cycle(operator, apply_m, r[:, active], norms[active], tol, restart,
+                                      lambda residuals, a=active: report(a, residuals))
         x[:, active] += apply_m(update)
-    residuals = np.linalg.norm(r, axis=0) / norms
-    return x, iterations, residuals
+    return x, iterations, np.linalg.norm(r, axis=0) / norms
+
+
+def _cycle(operator, apply_m, r, norms, tol, restart, report):
+    """One GMRES cycle (at most ``restart`` iterations) for the columns of ``r`` (N, K):
+    returns the update before preconditioning, and the residual it leaves (from the
+    Arnoldi relation). ``report(relative residuals (K,))`` after every iteration."""
+    n, ka = r.shape
+    beta = np.linalg.norm(r, axis=0)
+    basis = np.zeros((restart + 1, n, ka))
+    basis[0] = r / beta
+    h = np.zeros((ka, restart + 1, restart))
+    g = np.zeros((ka, restart + 1))
+    g[:, 0] = beta
+    cs, sn = np.zeros((ka, restart)), np.zeros((ka, restart))
+    for j in range(restart):
+        w = operator.matmat(apply_m(basis[j]))
+        for i in range(j + 1):  # modified Gram-Schmidt
+            hij = np.einsum("nk,nk->k", basis[i], w)
+            w -= basis[i] * hij
+            h[:, i, j] = hij
+        h[:, j + 1, j] = np.linalg.norm(w, axis=0)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            basis[j + 1] = np.where(h[:, j + 1, j] > 0, w / h[:, j + 1, j], 0.0)
+        for i in range(j):  # previous Givens rotations on the new column
+            hi, hi1 = h[:, i, j].copy(), h[:, i + 1, j].copy()
+            h[:, i, j] = cs[:, i] * hi + sn[:, i] * hi1
+            h[:, i + 1, j] = -sn[:, i] * hi + cs[:, i] * hi1
+        rho = np.hypot(h[:, j, j], h[:, j + 1, j])
+        rho[rho == 0] = 1.0
+        cs[:, j], sn[:, j] = h[:, j, j] / rho, h[:, j + 1, j] / rho
+        h[:, j, j], h[:, j + 1, j] = rho, 0.0
+        g[:, j + 1] = -sn[:, j] * g[:, j]
+        g[:, j] = cs[:, j] * g[:, j]
+        residuals = np.abs(g[:, j + 1]) / norms
+        report(residuals)
+        if np.all(residuals <= tol):
+            break
+    m = j + 1
+    update, left = np.zeros((n, ka)), np.zeros((n, ka))
+    for c in range(ka):
+        y = scipy.linalg.solve_triangular(h[c, :m, :m], g[c, :m])
+        update[:, c] = basis[:m, :, c].T @ y
+        left[:, c] = basis[: m + 1, :, c].T @ _residual_coordinates(g[c, m], cs[c, :m], sn[c, :m])
+    return update, left
 
 
 def _residual_coordinates(last: float, cs: np.ndarray, sn: np.ndarray) -> np.ndarray:
