@@ -74,6 +74,7 @@ def test_demo_matrix_is_physical_and_mirror_symmetric(tmp_path, capsys):
      "panel budget 300 is not above the model's 320 panels"),
     ("ball", ["solve", "{tmp}/ball.stl", "--levels", "5"], "Invalid value for '--levels'"),
 ])
+@pytest.mark.smoke
 def test_bad_input_gives_one_line_and_exit_2(tmp_path, capsys, setup, args, message):
     contents = {
         "part.xyz": "1 2 3",
@@ -94,6 +95,7 @@ def test_bad_input_gives_one_line_and_exit_2(tmp_path, capsys, setup, args, mess
     assert not list(tmp_path.rglob("*.json"))
 
 
+@pytest.mark.smoke
 def test_console_script_exit_status_and_no_traceback(tmp_path):
     """The module entry point exits 2 on bad input, like the installed script."""
     proc = subprocess.run([sys.executable, "-m", "tricharge", "solve", str(tmp_path / "none.stl")],
@@ -139,6 +141,7 @@ def test_inspect_broken_model_prints_table_and_one_error_line(tmp_path, capsys):
     assert captured.err.count("\n") == 1 and "conductor 'c2' lies inside conductor 'c1'" in captured.err
 
 
+@pytest.mark.smoke
 def test_default_demo_solves(capsys):
     assert main(["demo", "-q"]) == 0
     assert capsys.readouterr().out == ""
@@ -216,6 +219,7 @@ def test_field_sampling_options_fail_cleanly(tmp_path, capsys, args, message):
     assert list(tmp_path.iterdir()) == []
 
 
+@pytest.mark.slow
 def test_field_json_carries_samples_and_refinement(tmp_path):
     out = tmp_path / "f.json"
     assert main(["field", str(DATA_HV), "-q", "--probe", "0,0,20", "--refine-peaks", "--vtk", str(tmp_path / "x.vti"),
@@ -277,3 +281,20 @@ def test_accuracy_option_refines_adaptively(tmp_path, capsys):
     data = json.loads(out.read_text())
     assert data["refinement_study"]["stop"] == "accuracy reached"
     assert data["error_estimate"][0][0] <= 0.02 * data["capacitance_matrix"][0][0]
+
+
+def test_solve_prints_and_saves_sensitivities(tmp_path, capsys):
+    """Two spheres: the coupling grows as sphere b moves towards a (-x) and the JSON holds
+    every derivative in both forms, in F/m."""
+    path = tmp_path / "pair.stl"
+    v, t, _ = shapes.combine(shapes.sphere(10.0, 4), shapes.sphere(6.0, 4, center=(25.0, 0, 0)))
+    trimesh.Trimesh(v, t, process=False).export(path)
+    out = tmp_path / "pair.json"
+    assert main(["solve", str(path), "--unit", "mm", "--sensitivity", "--json", str(out)]) == 0
+    text = capsys.readouterr().out
+    assert "Largest sensitivities" in text and "per 0.1 mm of a part moving" in text
+    data = json.loads(out.read_text())["sensitivity"]
+    assert data["parts"] == ["c1", "c2"] and data["unit"] == "F/m"
+    coupling_along_x = np.array(data["translation_mutual"])[1, 0, 0, 1]
+    assert coupling_along_x < 0  # moving c2 away (+x) weakens the coupling
+    np.testing.assert_allclose(np.array(data["translation_maxwell"])[1, 0], np.array(data["translation_maxwell"])[1, 0].T)

@@ -311,3 +311,18 @@ def refine_peaks(result: FieldResult, model: Model, *, radius_panels: float = 4.
             np.linalg.norm(centroids - np.array(spot.location), axis=1) < radius_panels * spot.panel_size)
         out.append((result.parts[spot.group], spot.field, float(magnitude[around].max())))
     return out
+
+
+def sensitivity(model: Model, result: Result):
+    """Derivatives (F/m) of ``result``'s Maxwell matrix with respect to moving each
+    conductor surface of ``model`` (its mesh groups, e.g. a bond wire) rigidly along x, y
+    and z, and to growing it outward: :class:`~tricharge.bem.sensitivity.Sensitivity`.
+    From the solved charges alone (no extra solve)."""
+    from .bem.sensitivity import sensitivities
+
+    problem = problem_of(model)
+    owned = {s for c in model.conductors for s in c.surfaces}
+    names = tuple(s for s in model.surfaces if s in owned)
+    part_of_surface = np.array([names.index(s) if s in owned else -1 for s in model.surfaces])
+    part = np.where(model.conductor_labels >= 0, part_of_surface[model.surface_index], -1)
+    return sensitivities(problem, result.sigma, result.panel_conductor, part, names)

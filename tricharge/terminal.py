@@ -352,3 +352,34 @@ def placement_notes(requests, values, model) -> list[str]:
         if said:
             notes.append(f"{kind} {numbers[kind]}: of {len(points):,} points, " + "; ".join(said))
     return notes
+
+
+def sensitivity_report(sens, result, model, *, top: int = 10) -> str:
+    """The largest changes of the mutual-form capacitors when a part moves by a step of
+    about a hundredth of the model's size (a round number in the model's unit)."""
+    from .bem.results import mutual_form
+    from .units import metres_per
+
+    names = [printable(n) for n in result.conductors]
+    mutual = result.mutual
+    diagonal = float(np.linalg.norm(np.ptp(model.vertices, axis=0)))
+    step = 10.0 ** np.floor(np.log10(diagonal / 100.0))
+    scale = metres_per(model.unit)
+    rows = []
+    for p, part in enumerate(sens.parts):
+        for d, axis in enumerate("xyz"):
+            change = mutual_form(sens.translation[p, d]) * step
+            for a in range(len(names)):
+                for b in range(a, len(names)):
+                    if mutual[a, b] > 1e-3 * np.abs(mutual).max():
+                        rows.append((abs(change[a, b]) / mutual[a, b], change[a, b], a, b, part, axis))
+    rows.sort(key=lambda row: -row[0])
+    reference = printable(result.reference)
+    lines = [f"Largest sensitivities (from the solved charges, no extra solve), per {step / scale:g} {model.unit} "
+             "of a part moving:"]
+    for relative, change, a, b, part, axis in rows[:top]:
+        what = f"{names[a]} - {names[b]} coupling" if a != b else f"{names[a]} - {reference}"
+        lines.append(f"  {what}: {format_eng(change, 'F', keep_zeros=False)} ({change / abs(mutual[a, b]):+.2%}) with "
+                     f"{printable(part)} moving +{axis}")
+    lines.append("  (a tolerance budget: multiply by the expected movement in steps; all in the JSON, in F/m)")
+    return "\n".join(lines)

@@ -98,12 +98,12 @@ def free_charge_density(problem, sigma) -> np.ndarray:
     if len(rows):
         front, behind = problem.permittivity[rows], problem.permittivity_behind[rows]
         for k in range(columns.shape[1]):
-            normal = _normal_field(problem, columns[:, k], rows)
+            normal = normal_field_at_panels(problem, columns[:, k], rows)
             out[rows, k] = 0.5 * (front + behind) * columns[rows, k] + EPS0 * (front - behind) * normal
     return out.reshape(s.shape)
 
 
-def _normal_field(problem, sigma, rows) -> np.ndarray:
+def normal_field_at_panels(problem, sigma, rows) -> np.ndarray:
     """Principal-value normal field (V/m) at the centroids of panels ``rows`` (images included)."""
     panels = problem.panels
     e = field_at(panels.centroids[rows], panels, sigma, images=problem.images)
@@ -146,7 +146,7 @@ def surface_field(problem, sigma, *, policy: NearFieldPolicy | None = None) -> S
     outside[on] = sigma[on] / EPS0
     sheets = np.flatnonzero(problem.sheet)
     if len(sheets):  # both faces: the principal-value field plus or minus half the jump
-        normal = _normal_field(problem, sigma, sheets)
+        normal = normal_field_at_panels(problem, sigma, sheets)
         outside[sheets] = normal + sigma[sheets] / (2.0 * EPS0)
         inside[sheets] = normal - sigma[sheets] / (2.0 * EPS0)
     rows = np.flatnonzero(~on)

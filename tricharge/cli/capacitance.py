@@ -49,12 +49,15 @@ DEFAULT_DEMO = "hv"
                    "estimated error below this, e.g. 0.5%%.")
 @click.option("--max-panels", type=click.IntRange(100, 10_000_000), default=200_000, show_default=True,
               help="Panel budget of --accuracy.")
+@click.option("--sensitivity", "with_sensitivity", is_flag=True,
+              help="Also compute how every capacitance changes when each conductor surface moves (from the solved "
+                   "charges, no extra solve); the largest are printed, all go to the JSON.")
 @click.option("--study-png", "study_png", type=FILE,
               help="Chart the refinement study (needs --levels or --accuracy) as a PNG.")
 @quiet_option
 def solve(input_path: Path, unit: str | None, json_path: Path | None, method: str, tol: float, merge, grounded,
           reference, spice_path, drop_below, csv_path, npz_path, form, vtu_path, levels: int, accuracy,
-          max_panels: int, study_png: Path | None, quiet: bool):
+          max_panels: int, with_sensitivity: bool, study_png: Path | None, quiet: bool):
     """Capacitance matrix of the conductors in INPUT: a surface mesh (.msh .stl .obj .ply
     .vtk .vtu) or a model file (.toml) that says what the mesh surfaces are.
 
@@ -78,11 +81,11 @@ def solve(input_path: Path, unit: str | None, json_path: Path | None, method: st
         require("viz", "--study-png")
     solve_and_report(input_path, unit, plan, targets, Terminal(quiet, plan.to_stdout), method=method, tol=tol,
                       reductions=parse_reductions(merge, grounded, reference), form=form, drop_below=drop_below,
-                      study=study)
+                      study=study, with_sensitivity=with_sensitivity)
 
 
 def solve_and_report(input_path: Path, unit, plan, targets, terminal: Terminal, *, method="auto", tol=1e-6,
-                      reductions=None, form="maxwell", drop_below=0.0, study=None) -> None:
+                      reductions=None, form="maxwell", drop_below=0.0, study=None, with_sensitivity=False) -> None:
     from ..io import outputs
     from ..terminal import plural, result_report
     from ..pipeline import check_reductions, solve
@@ -102,6 +105,13 @@ def solve_and_report(input_path: Path, unit, plan, targets, terminal: Terminal, 
         result = full.reduced(**reductions)
     terminal.say(result_report(result, source=input_path.name, unit=model.unit, version=__version__))
     origin = outputs.provenance(model, command="solve")
+    if with_sensitivity:
+        from ..pipeline import sensitivity
+        from ..terminal import sensitivity_report
+
+        sens = sensitivity(model, full).reduced(full.conductors, **reductions)
+        terminal.say("\n" + sensitivity_report(sens, result, model))
+        origin = dict(origin, sensitivity=sens.to_dict())
 
     def stage_all(stage):
         notes = outputs.stage_solve(stage, targets, result, full, model, origin, form=form, drop_below=drop_below)
