@@ -107,6 +107,7 @@ def _toml_value(value):
     return repr(value)
 
 
+@pytest.mark.smoke
 @FUZZ
 @given(top=st.dictionaries(_keys, st.one_of(_scalars, st.lists(_scalars, max_size=3)), max_size=5),
        sections=st.dictionaries(st.sampled_from(["ground", "media", "conductors.c1", "interfaces.s"]),

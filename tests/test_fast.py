@@ -44,6 +44,7 @@ def test_fast_matvec_matches_dense_with_the_same_rules(name):
     assert np.allclose(fast.matvec(x[:, 0]), fast.matmat(x)[:, 0])
 
 
+@pytest.mark.smoke
 def test_direct_and_multipole_sums_agree():
     rng = np.random.default_rng(0)
     sources, charges, targets = rng.normal(size=(3000, 3)), rng.normal(size=(3000, 2)), rng.normal(size=(2500, 3))
@@ -65,6 +66,7 @@ def test_dipole_sums_agree_direct_and_multipole(monkeypatch):
     assert np.abs(direct - multipole).max() < 1e-8 * np.abs(direct).max()
 
 
+@pytest.mark.smoke
 def test_compiled_kernel_matches_numpy_integrals():
     panels = make_panels(*shapes.cube(1.0, 6, graded=True))
     i, j, rel = near_pairs(panels.centroids, panels, FAST_POLICY.corrected_within)
@@ -106,6 +108,7 @@ def test_fast_capacitance_matches_dense(name):
     np.testing.assert_allclose(fast.capacitance, dense.capacitance, rtol=1e-4)
 
 
+@pytest.mark.slow
 def test_fast_path_on_a_mesh_too_large_for_dense():
     """Sphere with 32,000 panels (a dense matrix would need 8 GB): C = 4 pi eps0 R
     (Jackson, Classical Electrodynamics, 3rd ed., ch. 1), within 0.05 %, closer than at
@@ -115,6 +118,7 @@ def test_fast_path_on_a_mesh_too_large_for_dense():
     assert result.method == "fast" and abs(error) < 5e-4, error
 
 
+@pytest.mark.slow
 def test_local_inverse_cuts_iterations():
     panels = make_panels(*shapes.cube(1.0, 24))
     operator = FastSingleLayer(panels)

@@ -28,6 +28,7 @@ def _write_gmsh(path, fmt, names=True, extra_cells=()):
     return v, t, labels
 
 
+@pytest.mark.smoke
 @pytest.mark.parametrize("fmt", ["gmsh22", "gmsh"])  # Gmsh 2.2 and 4.1
 def test_gmsh_physical_names_become_conductors(tmp_path, fmt):
     path = tmp_path / "parts.msh"
@@ -49,6 +50,7 @@ def test_gmsh_groups_without_names_and_ignored_cells(tmp_path):
     assert model.n_panels == len(t)
 
 
+@pytest.mark.smoke
 @pytest.mark.parametrize("ending", ["stl", "obj", "ply"])
 def test_trimesh_formats_split_into_components(tmp_path, ending):
     v, t, labels = _two_cubes()
@@ -83,6 +85,7 @@ def test_components_numbered_by_lowest_triangle(tmp_path):
     assert set(small.tolist()) == {1}  # the first cube written second is c2
 
 
+@pytest.mark.smoke
 def test_vtu_with_quads(tmp_path):
     quads = np.array([[0, 1, 2, 3]])
     points = np.array([[0, 0, 0], [1, 0, 0], [1, 1, 0], [0, 1, 0]], float)

@@ -183,6 +183,7 @@ def test_study_reports_progress_per_level():
     assert stages[0] == "level 1/2 (80 panels)" and "level 2/2 (320 panels)" in stages
 
 
+@pytest.mark.slow
 def test_studies_run_with_plane_dielectric_and_floating_parts():
     """A sphere in a dielectric shell over a ground plane, next to a floating sphere: both
     study kinds run (dense and fast paths), keep every panel's role, and sum the charges

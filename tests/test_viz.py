@@ -17,6 +17,7 @@ from tricharge.viz import field_picture
 from tricharge.viz.render import project, render_png
 
 
+@pytest.mark.smoke
 def test_sphere_render_is_not_blank(tmp_path):
     model = Model.from_arrays(*shapes.sphere(1.0, 8))
     picture, _ = field_picture(model, solve_field(model, {"c1": 1.0}), quantity="charge")
@@ -118,6 +119,7 @@ def test_view_needs_an_output_and_reads_saved_results(tmp_path, capsys):
     assert (tmp_path / "hv.png").stat().st_size > 1000
 
 
+@pytest.mark.smoke
 def test_line_chart_and_heat_map_are_pictures(tmp_path):
     import matplotlib.image
 

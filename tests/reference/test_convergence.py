@@ -90,7 +90,7 @@ def test_disk_study():
     assert 0.9 < study.extrapolation.order[0, 0] < 1.3
 
 
-@pytest.mark.parametrize("b, c", [(1.0, 2.5), (0.5, 2.0)])
+@pytest.mark.parametrize("b, c", [(1.0, 2.5), pytest.param(0.5, 2.0, marks=pytest.mark.slow)])
 def test_two_spheres_study(b, c):
     """Two spheres, the full 2x2 matrix against the bispherical series (Smythe, Static and
     Dynamic Electricity, 3rd ed. 1968, section 5.08, section from memory; see
@@ -102,6 +102,7 @@ def test_two_spheres_study(b, c):
     check_study(study, two_sphere_series(1.0, b, c) * FOUR_PI_EPS0)
 
 
+@pytest.mark.slow
 def test_adaptive_cube_beats_uniform_refinement():
     """Adaptive refinement to 0.5% on the unit cube (Hwang & Mascagni 2004): the target is
     met, the true error is inside the estimate, and a uniform mesh with more panels than

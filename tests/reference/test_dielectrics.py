@@ -68,7 +68,7 @@ def test_series_matches_the_published_sample():
     assert sphere_over_plane(1.0, 1.5) / FOUR_PI_EPS0 == pytest.approx(1.5353705088, rel=1e-9)
 
 
-@pytest.mark.parametrize("gap", [0.1, 1.0, 10.0])
+@pytest.mark.parametrize("gap", [pytest.param(0.1, marks=pytest.mark.slow), 1.0, 10.0])
 def test_sphere_above_a_grounded_plane(gap):
     """Gap / radius from 0.1 to 10, within 1 % of the image series."""
     radius = 1.0
@@ -88,7 +88,8 @@ def _floating_shell_problem():
     return problem_from_arrays(v, t, labels, floating=[False, True], names=("core", "shell"))
 
 
-@pytest.mark.parametrize("case", ["dielectric shell", "floating shell", "sphere over plane"])
+@pytest.mark.parametrize("case", ["dielectric shell", pytest.param("floating shell", marks=pytest.mark.slow),
+                                  pytest.param("sphere over plane", marks=pytest.mark.slow)])
 def test_fast_and_dense_agree(case):
     """The matrix-free path reproduces the stored one within 1e-4 relative."""
     if case == "dielectric shell":

@@ -27,7 +27,8 @@ def test_sphere_surface_and_outside_field():
         assert np.linalg.norm(e) == pytest.approx(volts * radius / (r * radius) ** 2, rel=0.01)
 
 
-@pytest.mark.parametrize("gap, frequency, peak", [(0.1, 20, 10.67574867), (1.0, 12, 1.77028119)])
+@pytest.mark.parametrize("gap, frequency, peak", [pytest.param(0.1, 20, 10.67574867, marks=pytest.mark.slow),
+                                                  (1.0, 12, 1.77028119)])
 def test_peak_field_of_a_sphere_over_a_plane(gap, frequency, peak):
     """Sphere R = 1 m at 1 V over a grounded plane: peak surface field from the image-charge
     series (docs/references.md row 9; Maxwell 1873, Smythe 1968 section 5.08). Within 2 %."""
@@ -64,6 +65,7 @@ def test_potential_off_the_centroids_equals_the_applied_voltage(plane):
     np.testing.assert_allclose(phi, 5.0, rtol=0.005)
 
 
+@pytest.mark.slow
 def test_floating_conductor_takes_its_potential():
     """A floating shell between a 1 V core and infinity: potential from the series of
     capacitors, V_shell = (1/c) / (1/a - 1/b + 1/c) (exact, Gauss's law)."""
@@ -162,6 +164,7 @@ def test_near_surface_error_falls_as_the_square_of_the_panel_size():
     assert worst[0] / worst[1] > 3.0, worst
 
 
+@pytest.mark.slow
 def test_field_across_the_gap_of_concentric_spheres():
     """Sphere a at V inside the cavity (radius b) of a grounded thick shell: in the gap
     E = V / (r^2 (1/a - 1/b)) (Gauss's law, docs/references.md row 7); inside the sphere

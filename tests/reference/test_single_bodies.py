@@ -48,6 +48,7 @@ def test_thin_disk():
     assert abs(errors[1]) < 0.7 * abs(errors[0]), errors
 
 
+@pytest.mark.smoke
 def test_unit_cube_and_convergence():
     """Cube of side a: C = 0.6606782 * 4 pi eps0 a (+-1e-7).
 

@@ -21,7 +21,7 @@ from helpers import solve_shape
 def two_sphere_series(a, b, c, terms=400):
     """Maxwell matrix (2, 2) in units of 4 pi eps0 (metres)."""
     u = np.arccosh((c * c - a * a - b * b) / (2 * a * b))
-    n = np.arange(terms)
+    n = np.arange(min(terms, int(700 / u)))  # later terms are below exp(-700): nothing, and sinh overflows
     caa = a * b * np.sinh(u) * np.sum(1.0 / (a * np.sinh(n * u) + b * np.sinh((n + 1) * u)))
     cbb = a * b * np.sinh(u) * np.sum(1.0 / (b * np.sinh(n * u) + a * np.sinh((n + 1) * u)))
     cab = -(a * b / c) * np.sinh(u) * np.sum(1.0 / np.sinh(n[1:] * u))

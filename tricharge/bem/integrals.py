@@ -24,11 +24,11 @@ CHUNK = 100_000
 
 #: In-plane distances to an edge line below this fraction of the edge length are
 #: treated as zero, which keeps the edge-log term finite on the edge's own line.
-_EDGE_FLOOR = 1e-14
+EDGE_FLOOR = 1e-14
 
 #: Points closer to a triangle's plane than this fraction of its longest edge count as
 #: lying in the plane (round-off in a computed centroid must not pick a side).
-_PLANE_TOLERANCE = 1e-11
+PLANE_TOLERANCE = 1e-11
 
 
 def _edge_terms(points: np.ndarray, corners: np.ndarray):
@@ -53,7 +53,7 @@ def _edge_terms(points: np.ndarray, corners: np.ndarray):
     start = corners
     edge = np.roll(corners, -1, axis=1) - corners  # edge i runs from vertex i to i+1
     length = np.linalg.norm(edge, axis=2)
-    height = np.where(np.abs(height) < _PLANE_TOLERANCE * length.max(axis=1), 0.0, height)
+    height = np.where(np.abs(height) < PLANE_TOLERANCE * length.max(axis=1), 0.0, height)
     along = edge / length[:, :, None]
     u = np.cross(along, normal[:, None, :])
     rel = start - projected[:, None, :]
@@ -61,7 +61,7 @@ def _edge_terms(points: np.ndarray, corners: np.ndarray):
     l_minus = np.einsum("ped,ped->pe", rel, along)
     l_plus = l_minus + length
     r0 = np.sqrt(t * t + height[:, None] ** 2)
-    r0 = np.maximum(r0, _EDGE_FLOOR * length)
+    r0 = np.maximum(r0, EDGE_FLOOR * length)
     f = np.arcsinh(l_plus / r0) - np.arcsinh(l_minus / r0)
 
     a, b, c = v0 - points, v1 - points, v2 - points

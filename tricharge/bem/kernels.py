@@ -2,7 +2,7 @@
 
 The same mathematics as :mod:`tricharge.bem.integrals` and
 :func:`tricharge.bem.operators.pair_integrals`, written with scalars only (small arrays
-inside a numba kernel are slow, MEASURED.md) and run over pairs in parallel. It pays
+inside a numba kernel are slow, docs/measured.md) and run over pairs in parallel. It pays
 where millions of pairs are integrated (the fast operator's near field: about 6x faster
 than the vectorised numpy path, measured by bench/fast.py); tests check it against the
 numpy path to 1e-12.
@@ -12,14 +12,40 @@ from __future__ import annotations
 
 import math
 
+import numba
 import numpy as np
 from numba import njit, prange
 
-_EDGE_FLOOR = 1e-14
-_PLANE_TOLERANCE = 1e-11
+from ..cache import numba_cache_dir
+from .integrals import EDGE_FLOOR, PLANE_TOLERANCE  # the same tolerances as the numpy twin
 
 
-@njit(cache=True, fastmath=False)
+#: Where compiled kernels are cached (tricharge.cache): never beside this file, where pip
+#: would leave them behind on uninstall. None: compile without caching.
+_CACHE_DIR = numba_cache_dir(numba.config.CACHE_DIR)
+
+
+def _compiled(**options):
+    """``numba.njit(**options)``, caching compiled code in ``_CACHE_DIR``.
+
+    numba picks the cache folder from ``numba.config.CACHE_DIR`` when the decorator runs
+    (not when it compiles), so the setting is changed for that moment only and the
+    user's own is restored.
+    """
+    def decorate(function):
+        if _CACHE_DIR is None:
+            return njit(cache=False, **options)(function)
+        setting = numba.config.CACHE_DIR
+        numba.config.CACHE_DIR = str(_CACHE_DIR)
+        try:
+            return njit(cache=True, **options)(function)
+        finally:
+            numba.config.CACHE_DIR = setting
+
+    return decorate
+
+
+@_compiled(fastmath=False)
 def _closed_form(x0, x1, x2, c):
     """Integral of 1/|x - y| over triangle c (3, 3) at point (x0, x1, x2); see integrals.py."""
     ax, ay, az = c[0, 0], c[0, 1], c[0, 2]
@@ -34,7 +60,7 @@ def _closed_form(x0, x1, x2, c):
         k1 = (k + 1) % 3
         dx, dy, dz = c[k1, 0] - c[k, 0], c[k1, 1] - c[k, 1], c[k1, 2] - c[k, 2]
         longest = max(longest, math.sqrt(dx * dx + dy * dy + dz * dz))
-    if abs(height) < _PLANE_TOLERANCE * longest:
+    if abs(height) < PLANE_TOLERANCE * longest:
         height = 0.0
     px, py, pz = x0 - height * nx, x1 - height * ny, x2 - height * nz
     total = 0.0
@@ -48,7 +74,7 @@ def _closed_form(x0, x1, x2, c):
         t = rx * ux + ry * uy + rz * uz
         l_minus = rx * lx + ry * ly + rz * lz
         l_plus = l_minus + length
-        r0 = max(math.sqrt(t * t + height * height), _EDGE_FLOOR * length)
+        r0 = max(math.sqrt(t * t + height * height), EDGE_FLOOR * length)
         total += t * (math.asinh(l_plus / r0) - math.asinh(l_minus / r0))
     if height != 0.0:
         ax_, ay_, az_ = c[0, 0] - x0, c[0, 1] - x1, c[0, 2] - x2
@@ -64,7 +90,7 @@ def _closed_form(x0, x1, x2, c):
     return total
 
 
-@njit(cache=True)
+@_compiled()
 def _point_rule(x0, x1, x2, pts, w, skip_within):
     """sum_q w_q / |x - y_q|, skipping points closer than ``skip_within``."""
     total = 0.0
@@ -76,7 +102,7 @@ def _point_rule(x0, x1, x2, pts, w, skip_within):
     return total
 
 
-@njit(parallel=True, cache=True)
+@_compiled(parallel=True)
 def near_values(targets, i, j, rel, corners, sizes, near_pts, near_w, mid_pts, mid_w, far_pts, far_w,
                 closed_within, near_within, subtract_far):
     """Per pair p: the policy's value for target ``i[p]`` and panel ``j[p]``, minus the
