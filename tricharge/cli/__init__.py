@@ -17,7 +17,7 @@ import click
 
 from ..errors import TrichargeError
 from ..names import printable
-from . import capacitance, fields  # noqa: F401  (the commands register themselves on the group)
+from . import capacitance, fields, sweeps  # noqa: F401  (the commands register themselves on the group)
 from .common import cli
 
 __all__ = ["cli", "main", "run"]

@@ -88,3 +88,39 @@ def convergence_chart(names, study: dict, value, error) -> bytes:
     data = _png(figure)
     plt.close(figure)
     return data
+
+
+def sweep_chart(parameter: str, records: list[dict], *, axis_label: str | None = None, most: int = 8) -> bytes:
+    """PNG bytes: how the mutual capacitances of the finished variants change with one
+    swept parameter, in % of their value at its first level (their size in the legend),
+    the ``most`` largest capacitors, one colour each. Where other parameters vary too, the
+    line joins the mean over them at each level and a bar spans their smallest to largest
+    value. ``axis_label`` names the parameter with its unit."""
+    plt = _pyplot()
+    x = np.array([float(r["values"][parameter]) for r in records])
+    names = records[0]["conductors"]
+    mutual = np.array([r["mutual"] for r in records])  # (V, K, K)
+    pairs = [(a, b) for a in range(len(names)) for b in range(a, len(names))]
+    pairs.sort(key=lambda ab: -np.abs(mutual[:, ab[0], ab[1]]).max())
+    scale, symbol = prefix_for(np.abs(mutual).max() if mutual.size else 0.0)
+    levels = np.unique(x)
+    figure, axes = plt.subplots(figsize=(6.5, 4))
+    for a, b in pairs[:most]:
+        other = records[0]["reference"] if a == b else names[b]
+        values = [mutual[x == level, a, b] for level in levels]
+        first = values[0].mean()
+        percent = [100.0 * (v / first - 1.0) if first else np.zeros_like(v) for v in values]
+        mean = np.array([v.mean() for v in percent])
+        spread = np.array([[m - v.min() for v, m in zip(percent, mean)], [v.max() - m for v, m in zip(percent, mean)]])
+        axes.errorbar(levels, mean, yerr=spread if spread.any() else None, fmt="o-", capsize=3,
+                      label=chart_label(f"{names[a]} - {other} ({first / scale:.4g} {symbol}F)", 40))
+    axes.axhline(0.0, color="0.5", linewidth=0.8)
+    axes.set_xlabel(chart_label(axis_label or parameter, 80))
+    axes.set_ylabel(f"change from {chart_label(parameter, 20)} = {levels[0]:.4g} (%)")
+    varied = "; bars: the range over the other parameters" if len(levels) < len(x) else ""
+    axes.set_title(chart_label(f"Mutual capacitances against {parameter}{varied}", 90), fontsize=10)
+    axes.grid(True, alpha=0.3)
+    axes.legend(fontsize=7, loc="center left", bbox_to_anchor=(1.01, 0.5))
+    data = _png(figure)
+    plt.close(figure)
+    return data

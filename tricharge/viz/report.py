@@ -224,3 +224,35 @@ def report_images(data: dict, picture=None) -> list:
         images.append(("Surface field with the applied voltages; numbered markers are the hot spots",
                        png_bytes(picture)))
     return images
+
+
+def sweep_html(sweep, records: list[dict], charts) -> str:
+    """A page for a sweep: what was swept, how many variants finished or failed (with their
+    errors), the charts, and the table of mutual capacitances per variant."""
+    names = [p.name for p in sweep.parameters]
+    done = [r for r in records if r["status"] == "done"]
+    failed = [r for r in records if r["status"] != "done"]
+    parts = [f"<h1>{_escape('tricharge sweep: ' + sweep.source)}</h1>",
+             f"<p>{len(records):,} variants ({sweep.combine}) of {_escape(', '.join(names))}: {len(done):,} solved, "
+             f"{len(failed):,} failed.</p>"]
+    for name, png in charts:
+        parts.append(f'<figure><img alt="{_escape(name)}" src="data:image/png;base64,'
+                     f'{base64.b64encode(png).decode()}"><figcaption>{_escape(name)}</figcaption></figure>')
+    if done:
+        conductors = done[0]["conductors"]
+        pairs = [(a, b) for a in range(len(conductors)) for b in range(a, len(conductors))]
+        header = ["variant", *names] + [f"{conductors[a]} - {conductors[b] if a != b else done[0]['reference']}"
+                                        for a, b in pairs]
+        rows = [[r["index"], *[r["values"][n] for n in names]]
+                + [_Html(_number(r["mutual"][a][b], format_eng(r["mutual"][a][b], "F"))) for a, b in pairs]
+                for r in done]
+        parts.append(_details(f"Mutual capacitances of {len(done):,} variants", _table(header, rows)))
+    if failed:
+        parts.append(_details(f"Failed variants: {len(failed):,}", _table(
+            ["variant", *names, "error"], [[r["index"], *[r["values"][n] for n in names], r.get("error", "")]
+                                           for r in failed])))
+    style = ("body{font-family:sans-serif;max-width:1100px;margin:2em auto;color:#222}"
+             "table{border-collapse:collapse;margin:1em 0}td,th{border:1px solid #ccc;padding:3px 8px;"
+             "text-align:right}img{max-width:100%}details{margin:1em 0}summary{cursor:pointer;font-weight:bold}")
+    return (f"<!DOCTYPE html><html><head><meta charset=\"utf-8\"><title>tricharge sweep</title><style>{style}"
+            "</style></head><body>" + "\n".join(parts) + "</body></html>\n")
