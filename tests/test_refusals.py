@@ -81,6 +81,24 @@ def test_memory_is_estimated_before_a_dense_solve(tmp_path, capsys, monkeypatch)
              "use --method fast")
 
 
+def test_a_solve_that_cannot_fit_is_refused_before_the_geometry_checks(tmp_path, capsys, monkeypatch):
+    """On millions of panels the checks take a minute; the memory refusal must not wait for
+    them, for meshes and for model files alike."""
+    import tricharge.model
+
+    def no_checks(*args, **kwargs):
+        raise AssertionError("the geometry checks ran before the memory check")
+
+    monkeypatch.setattr(tricharge.model, "survey", no_checks)
+    monkeypatch.setenv("TRICHARGE_MEMORY_BYTES", "2e6")
+    ball = _ball(tmp_path, 6)
+    (tmp_path / "ball.toml").write_text(f'mesh = "{ball.name}"\nunit = "m"\n')
+    for command in ("solve", "field", "report"):
+        extra = ["--html", str(tmp_path / "r.html")] if command == "report" else []
+        _refused(capsys, [command, str(ball), "--method", "dense", *extra], "a dense solve of 720 panels")
+    _refused(capsys, ["solve", str(tmp_path / "ball.toml"), "--method", "dense"], "ball.toml: a dense solve")
+
+
 def test_memory_is_estimated_for_studies_budgets_and_samples(tmp_path, capsys, monkeypatch):
     ball = _ball(tmp_path)
     monkeypatch.setenv("TRICHARGE_MEMORY_BYTES", "1e8")

@@ -118,12 +118,23 @@ def check_solve_memory(model: Model, method: str, n_panels: int | None = None, *
     whose estimated memory (:func:`~tricharge.bem.factory.memory_estimate`) exceeds
     what the machine has available. ``method`` may be "auto"."""
     n = model.n_panels if n_panels is None else int(n_panels)
-    simple = is_simple(model)
+    _check_memory_of(n, method, is_simple(model), len(model.conductors), what or model.source)
+
+
+def check_panel_memory(n_panels: int, method: str, what: str) -> None:
+    """The memory check of a solve from the panel count alone, before the model is built
+    and its geometry checked (a minute on millions of panels): refuses only what would not
+    fit even as conductors alone with one right-hand side, the smallest estimate;
+    :func:`check_solve_memory` checks the model itself afterwards."""
+    _check_memory_of(int(n_panels), method, True, 1, what)
+
+
+def _check_memory_of(n: int, method: str, simple: bool, columns: int, what: str) -> None:
     chosen = resolve_method(n, method, conductors_only=simple)
-    needed = memory_estimate(n, chosen, simple=simple, columns=len(model.conductors))
+    needed = memory_estimate(n, chosen, simple=simple, columns=columns)
     advice = ("use --method fast (memory growing linearly with the panel count)" if chosen == "dense" else
               "use a coarser mesh, fewer refinement levels or a lower --max-panels")
-    check_memory(needed, f"{what or model.source}: a {chosen} solve of {n:,} panels", advice)
+    check_memory(needed, f"{what}: a {chosen} solve of {n:,} panels", advice)
 
 
 #: Points evaluated at a time, so near-field pair lists stay bounded (our choice).

@@ -90,7 +90,7 @@ def solve_and_report(input_path: Path, unit, plan, targets, terminal: Terminal, 
     from ..terminal import plural, result_report
     from ..pipeline import check_reductions, solve
 
-    model = load_model(input_path, unit, plan, terminal)
+    model = load_model(input_path, unit, plan, terminal, method=method)
     reductions = reductions or dict(nets={}, grounded=[], reference=None)
     check_reductions(model, **reductions)
     terminal.say(f"read {printable(input_path.name)}: {plural(len(model.conductors), 'conductor')} "

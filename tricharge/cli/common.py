@@ -27,10 +27,15 @@ def plan_outputs(input_path: Path, outputs: dict):
 def load_model(input_path: Path, unit: str | None, plan, terminal: Terminal, *, method: str | None = None,
           check: bool = True):
     """Read the model, check the outputs against every file it names, keep its warnings
-    (shown when the run has succeeded, see :func:`commit`)."""
+    (shown when the run has succeeded, see :func:`commit`). With ``method``, a solve that
+    cannot fit in memory is refused as soon as the panels are counted, before the
+    geometry checks."""
     from ..io.modelfile import load
+    from ..pipeline import check_panel_memory
 
-    model = load(input_path, unit=unit, check=check)
+    name = printable(input_path.name)
+    precheck = None if method is None else (lambda n_panels: check_panel_memory(n_panels, method, name))
+    model = load(input_path, unit=unit, check=check, precheck=precheck)
     plan.add_inputs(model.inputs)
     for warning in model.warnings + (model.survey.warnings if check else ()):
         terminal.warn(warning)

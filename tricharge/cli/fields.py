@@ -65,7 +65,7 @@ def field(input_path: Path, unit: str | None, volts, withstand, top: int, probe,
 
         require("viz", "--line-png")
     terminal = Terminal(quiet, plan.to_stdout)
-    model = load_model(input_path, unit, plan, terminal)
+    model = load_model(input_path, unit, plan, terminal, method=method)
     applied_voltages(model, voltages)  # names and values checked before the solve
     requests = sample_requests(model, probe, lines, section, grid)
     if requests and samples_path is None and vtk_path is None and line_png is None and json_path is None:
@@ -154,7 +154,7 @@ def view(input_path: Path, unit, volts, png_path, quantity, log_scale, view_name
         from ..pipeline import applied_voltages, solve_field
         from ..viz import field_picture
 
-        model = load_model(input_path, unit, plan, terminal)
+        model = load_model(input_path, unit, plan, terminal, method=method)
         applied_voltages(model, voltages)
         progress = Progress(quiet)
         try:
@@ -218,7 +218,7 @@ def _report_from_model(input_path, unit, voltages, strengths, threshold, method,
     from ..viz import field_picture
     from ..viz.report import report_data, report_html, report_images
 
-    model = load_model(input_path, unit, plan, terminal)
+    model = load_model(input_path, unit, plan, terminal, method=method)
     driven = all(c.floating or c.voltage is not None or c.name in voltages for c in model.conductors)
     if driven or voltages:
         applied_voltages(model, voltages)

@@ -369,11 +369,12 @@ def unit_warnings(source: str, vertices: np.ndarray, triangles: np.ndarray, fix:
             f"are millimetres, {fix}",)
 
 
-def read_mesh(paths, *, unit: str | None = None, check: bool = True) -> Model:
+def read_mesh(paths, *, unit: str | None = None, check: bool = True, precheck=None) -> Model:
     """Read mesh file(s) into a model where every surface is a conductor of the same name.
 
     ``unit`` None reads metres and warns (``Model.warnings``) when the model is so large
-    that the coordinates are probably millimetres.
+    that the coordinates are probably millimetres. ``precheck(n_panels)`` runs once the
+    triangles are read, before the geometry checks (which take a while on a huge mesh).
 
     Raises
     ------
@@ -381,6 +382,8 @@ def read_mesh(paths, *, unit: str | None = None, check: bool = True) -> Model:
     without usable triangles or with invalid geometry. Messages start with the file name.
     """
     mesh = read_surfaces(paths, unit=unit or "m")
+    if precheck is not None:
+        precheck(len(mesh.triangles))
     conductors = tuple(Conductor(name, (name,)) for name in mesh.surfaces)
     warnings = () if unit else unit_warnings(mesh.source, mesh.vertices, mesh.triangles, "add --unit mm")
     return Model(mesh.vertices, mesh.triangles, mesh.surface_index, mesh.surfaces, conductors,

@@ -176,7 +176,7 @@ def _conductor(path, name, spec, surfaces, aliases, known_media):
     return Conductor(name, own, voltage, floating, charge), media
 
 
-def load_model_file(path, *, unit: str | None = None, check: bool = True) -> Model:
+def load_model_file(path, *, unit: str | None = None, check: bool = True, precheck=None) -> Model:
     """Read a TOML model file and the mesh files it names into a :class:`Model`.
 
     Parameters
@@ -184,6 +184,7 @@ def load_model_file(path, *, unit: str | None = None, check: bool = True) -> Mod
     path : the .toml file; mesh paths in it are relative to its folder
     unit : a unit given elsewhere (command line); must agree with the file's ``unit``
     check : run the geometry checks (see :class:`~tricharge.model.Model`)
+    precheck : ``precheck(n_panels)``, run once the meshes are read, before the checks
 
     Raises
     ------
@@ -215,6 +216,8 @@ def load_model_file(path, *, unit: str | None = None, check: bool = True) -> Mod
     ground_z = None if "z" not in ground else _height(path, ground["z"], file_unit)
 
     mesh = _read_meshes(path, meshes, file_unit)
+    if precheck is not None:
+        precheck(len(mesh.triangles))
     warnings = () if "unit" in data or unit else unit_warnings(str(path), mesh.vertices, mesh.triangles,
                                                                 'add unit = "mm" to the file')
     interfaces = []
@@ -278,10 +281,11 @@ def _height(path: Path, value, unit: str) -> float:
     return z
 
 
-def load(path, *, unit: str | None = None, check: bool = True) -> Model:
+def load(path, *, unit: str | None = None, check: bool = True, precheck=None) -> Model:
     """A model from a model file (.toml) or a mesh file (any registered ending).
 
-    ``unit`` defaults to metres for meshes and to the model file's own ``unit``.
+    ``unit`` defaults to metres for meshes and to the model file's own ``unit``;
+    ``precheck(n_panels)`` runs before the geometry checks (a memory check, say).
     """
     from .meshes import read_mesh
 
@@ -291,5 +295,5 @@ def load(path, *, unit: str | None = None, check: bool = True) -> Model:
         raise OptionError(f"unit must be one of {', '.join(LENGTH_UNITS)} (text), got {unit!r}")
     path = Path(os.fsdecode(path))
     if path.suffix.lower() == ".toml":
-        return load_model_file(path, unit=unit, check=check)
-    return read_mesh(path, unit=unit, check=check)
+        return load_model_file(path, unit=unit, check=check, precheck=precheck)
+    return read_mesh(path, unit=unit, check=check, precheck=precheck)
