@@ -36,7 +36,7 @@ def test_gmsh_physical_names_become_conductors(tmp_path, fmt):
     model = load(path, unit="mm")
     assert model.conductor_names == ("lead", "pad")
     assert model.n_panels == len(t)
-    np.testing.assert_array_equal(np.bincount(model.conductor_labels), np.bincount(labels))
+    np.testing.assert_array_equal(np.bincount(model.panel_conductor), np.bincount(labels))
     assert np.ptp(model.vertices[:, 0]) == pytest.approx(np.ptp(v[:, 0]) * 1e-3)
     assert model.unit == "mm" and model.source == str(path)
 
@@ -59,7 +59,7 @@ def test_trimesh_formats_split_into_components(tmp_path, ending):
     model = load(path, unit="cm")
     assert model.conductor_names == ("c1", "c2")
     assert model.n_panels == len(t)
-    assert np.bincount(model.conductor_labels).tolist() == np.bincount(labels).tolist()
+    assert np.bincount(model.panel_conductor).tolist() == np.bincount(labels).tolist()
     assert len(model.vertices) == len(v)  # duplicated STL vertices merged back
     assert model.vertices.max() == pytest.approx(v.max() * 1e-2)
 
@@ -81,7 +81,7 @@ def test_components_numbered_by_lowest_triangle(tmp_path):
     path = tmp_path / "swapped.stl"
     trimesh.Trimesh(v, t[order], process=False).export(path)
     model = load(path)
-    small = model.conductor_labels[model.vertices[model.triangles[:, 0], 0] > 3.0]
+    small = model.panel_conductor[model.vertices[model.triangles[:, 0], 0] > 3.0]
     assert set(small.tolist()) == {1}  # the first cube written second is c2
 
 

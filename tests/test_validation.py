@@ -116,7 +116,7 @@ def test_closed_interface_normals_are_repaired_and_reported():
     model = _interface_model(scramble)
     assert any("interface 'skin': turned" in n for n in model.notes)
     reference = _interface_model()
-    skin = model.interface_labels == 0
+    skin = model.panel_interface == 0
     np.testing.assert_array_equal(model.triangles[skin], reference.triangles[skin])
 
 

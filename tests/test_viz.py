@@ -215,7 +215,7 @@ def test_interfaces_are_coloured_by_the_side_asked_for():
     field = solve_field(model, {"core": 1.0})
     outside, _ = field_picture(model, field, side="outside")
     inside, _ = field_picture(model, field, side="inside")
-    assert outside.overlay is not None and len(outside.overlay[2]) == int((model.conductor_labels < 0).sum())
+    assert outside.overlay is not None and len(outside.overlay[2]) == int((model.panel_conductor < 0).sum())
     ratio = np.median(inside.overlay[2] / outside.overlay[2])
     assert ratio == pytest.approx(1 / 4.0, rel=0.05)  # D continuous: E_in / E_out = eps_out / eps_in
 

@@ -65,9 +65,8 @@ def validate_surface(vertices, triangles, *, source: str = "mesh") -> tuple[np.n
         raise MeshError(f"{source}: coordinates reach {np.abs(used).max():.3g} m, beyond any real device; "
                         "check the file and its unit")
     corners = v[t]
-    edges = np.roll(corners, -1, axis=1) - corners
-    longest = np.linalg.norm(edges, axis=2).max(axis=1)
-    areas = 0.5 * np.linalg.norm(np.cross(edges[:, 0], -edges[:, 2]), axis=1)
+    _, longest, cross = triangle_measures(v, t)
+    areas = 0.5 * np.linalg.norm(cross, axis=1)
     degenerate = areas <= DEGENERATE_AREA_FRACTION * (np.sqrt(3.0) / 4.0) * longest**2
     if degenerate.any():
         first = int(np.flatnonzero(degenerate)[0])
@@ -177,15 +176,24 @@ def connected_components(triangles) -> np.ndarray:
     return renumber[tri_comp]
 
 
+def triangle_measures(vertices, triangles) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The one place triangle edges are formed. Returns ``edges`` (m, 3, 3), corner k to
+    corner k + 1 (k = 0, 1, 2, the order of :func:`edge_ids`); ``longest`` (m,) the
+    longest edge; ``cross`` (m, 3) twice the area vector, along the right-hand-rule
+    normal (units of the vertices, squared for ``cross``)."""
+    c = np.asarray(vertices)[np.asarray(triangles)]
+    edges = np.roll(c, -1, axis=1) - c
+    return edges, np.linalg.norm(edges, axis=2).max(axis=1), np.cross(edges[:, 0], -edges[:, 2])
+
+
 def aspect_ratios(vertices, triangles) -> np.ndarray:
     """(m,) shape quality: longest edge squared over twice the area, times sqrt(3)/2.
 
     1 for an equilateral triangle, growing without bound for needles and slivers.
     """
-    c = np.asarray(vertices)[np.asarray(triangles)]
-    edges = np.roll(c, -1, axis=1) - c
-    longest2 = np.einsum("med,med->me", edges, edges).max(axis=1)
-    double_area = np.linalg.norm(np.cross(edges[:, 0], -edges[:, 2]), axis=1)
+    _, longest, cross = triangle_measures(vertices, triangles)
+    longest2 = longest**2
+    double_area = np.linalg.norm(cross, axis=1)
     with np.errstate(divide="ignore"):
         return np.where(double_area > 0, longest2 / double_area * (np.sqrt(3.0) / 2.0), np.inf)
 
@@ -298,39 +306,6 @@ def winding_numbers(points, vertices, triangles) -> np.ndarray:
                        + np.einsum("md,md->m", b, d) * na)
         out[k] = np.sum(2.0 * np.arctan2(numerator, denominator)) / (4.0 * np.pi)
     return out
-
-
-def segments_cross_triangles(p0, p1, corners, tolerance: float = 1e-12) -> np.ndarray:
-    """(p,) True where segment p0[k]-p1[k] passes through triangle corners[k] (pairs).
-
-    Möller-Trumbore test restricted to the segment; touching at an end point within
-    ``tolerance`` (relative) also counts. Parallel segments never cross.
-    """
-    a, b, c = corners[:, 0], corners[:, 1], corners[:, 2]
-    d = p1 - p0
-    e1, e2 = b - a, c - a
-    h = np.cross(d, e2)
-    det = np.einsum("pd,pd->p", e1, h)
-    ok = np.abs(det) > 1e-14 * np.linalg.norm(e1, axis=1) * np.linalg.norm(e2, axis=1) * np.linalg.norm(d, axis=1)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        inv = 1.0 / det
-        s = p0 - a
-        u = inv * np.einsum("pd,pd->p", s, h)
-        q = np.cross(s, e1)
-        v = inv * np.einsum("pd,pd->p", d, q)
-        t = inv * np.einsum("pd,pd->p", e2, q)
-    eps = tolerance
-    with np.errstate(invalid="ignore"):
-        return ok & (u >= -eps) & (v >= -eps) & (u + v <= 1 + eps) & (t >= -eps) & (t <= 1 + eps)
-
-
-def triangles_intersect(corners_a, corners_b) -> np.ndarray:
-    """(p,) True where triangle pairs cross or touch (an edge of one meets the other)."""
-    hit = np.zeros(len(corners_a), dtype=bool)
-    for first, second in ((corners_a, corners_b), (corners_b, corners_a)):
-        for k in range(3):
-            hit |= segments_cross_triangles(first[:, k], first[:, (k + 1) % 3], second)
-    return hit
 
 
 class PairFinder:

@@ -232,12 +232,12 @@ class Model:
         return by_surface[self.surface_index]
 
     @cached_property
-    def conductor_labels(self) -> np.ndarray:
+    def panel_conductor(self) -> np.ndarray:
         """(m,) int64: conductor index of each triangle, -1 on interface triangles."""
         return self._labels(self.conductors)
 
     @cached_property
-    def interface_labels(self) -> np.ndarray:
+    def panel_interface(self) -> np.ndarray:
         """(m,) int64: interface index of each triangle, -1 on conductor triangles."""
         return self._labels(self.interfaces)
 

@@ -23,14 +23,14 @@ def problem_of(model: Model) -> Problem:
     from .sheets import sheet_faces
 
     panels = make_panels(model.vertices, model.triangles, source=model.source)
-    conductor = model.conductor_labels
+    conductor = model.panel_conductor
     faces = sheet_faces(model)
     on_conductor = conductor >= 0
     permittivity = np.where(on_conductor, faces.front, 1.0)
     contrast = np.zeros(model.n_panels)
     for k, interface in enumerate(model.interfaces):
         outside, inside = model.permittivity(interface.outside), model.permittivity(interface.inside)
-        contrast[model.interface_labels == k] = (outside - inside) / (outside + inside)
+        contrast[model.panel_interface == k] = (outside - inside) / (outside + inside)
     floating = np.array([c.floating for c in model.conductors], dtype=bool)
     two_media = faces.sheet & (faces.behind != faces.front)
     for k in np.flatnonzero(floating):
@@ -245,9 +245,9 @@ def solve_field(model: Model, voltages: dict[str, float] | None = None, *, metho
 
 def part_index(model: Model) -> np.ndarray:
     """(m,) part index per triangle: conductors first, then interfaces."""
-    groups = model.conductor_labels.copy()
-    on_interface = model.interface_labels >= 0
-    groups[on_interface] = len(model.conductors) + model.interface_labels[on_interface]
+    groups = model.panel_conductor.copy()
+    on_interface = model.panel_interface >= 0
+    groups[on_interface] = len(model.conductors) + model.panel_interface[on_interface]
     return groups
 
 
@@ -256,7 +256,7 @@ def _panel_media(model: Model):
     outside = np.array([model.medium_of_surface(model.surfaces[s]) for s in model.surface_index], dtype=object)
     inside = np.full(model.n_panels, None, dtype=object)
     for k, interface in enumerate(model.interfaces):
-        on = model.interface_labels == k
+        on = model.panel_interface == k
         outside[on], inside[on] = interface.outside, interface.inside
     return outside, inside
 
@@ -284,9 +284,9 @@ def _utilisation(model: Model, volts: np.ndarray, surface):
         return None, None
     from scipy.spatial import cKDTree
 
-    a, b = (model.vertices[np.unique(model.triangles[model.conductor_labels == k])] for k in driven)
+    a, b = (model.vertices[np.unique(model.triangles[model.panel_conductor == k])] for k in driven)
     gap = float(cKDTree(b).query(a)[0].min())
-    e_max = float(surface.magnitude[model.conductor_labels >= 0].max())
+    e_max = float(surface.magnitude[model.panel_conductor >= 0].max())
     return gap, abs(volts[driven[0]] - volts[driven[1]]) / gap / e_max
 
 
@@ -335,5 +335,5 @@ def sensitivity(model: Model, result: Result):
     owned = {s for c in model.conductors for s in c.surfaces}
     names = tuple(s for s in model.surfaces if s in owned)
     part_of_surface = np.array([names.index(s) if s in owned else -1 for s in model.surfaces])
-    part = np.where(model.conductor_labels >= 0, part_of_surface[model.surface_index], -1)
+    part = np.where(model.panel_conductor >= 0, part_of_surface[model.surface_index], -1)
     return sensitivities(problem, result.sigma, result.panel_conductor, part, names)

@@ -15,7 +15,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .mesh import closed_pieces
+from .mesh import closed_pieces, triangle_measures
 
 #: A sheet lies in an interface when the normals of the panels next to each other along
 #: their shared rim agree to within about 8 degrees (cos 0.99; our choice: meshes of one
@@ -39,7 +39,7 @@ def _conductor_sheets(model) -> np.ndarray:
     """(m,) True on conductor panels that lie on open pieces of their conductor's surface."""
     sheet = np.zeros(model.n_panels, dtype=bool)
     for k in range(len(model.conductors)):
-        rows = np.flatnonzero(model.conductor_labels == k)
+        rows = np.flatnonzero(model.panel_conductor == k)
         if len(rows):
             piece, closed = closed_pieces(model.triangles[rows])
             sheet[rows[~closed[piece]]] = True
@@ -47,8 +47,7 @@ def _conductor_sheets(model) -> np.ndarray:
 
 
 def _normals(model) -> np.ndarray:
-    c = model.vertices[model.triangles]
-    cross = np.cross(c[:, 1] - c[:, 0], c[:, 2] - c[:, 0])
+    _, _, cross = triangle_measures(model.vertices, model.triangles)
     return cross / np.linalg.norm(cross, axis=1, keepdims=True)
 
 
@@ -66,11 +65,11 @@ def sheet_faces(model) -> SheetFaces:
     if not len(rows):
         return SheetFaces(sheet, front, behind, ())
     normals = _normals(model)
-    interface = model.interface_labels
+    interface = model.panel_interface
     pieces = connected_components(model.triangles[rows])
     for p in range(int(pieces.max()) + 1):
         members = rows[pieces == p]
-        name = model.conductors[model.conductor_labels[members[0]]].name
+        name = model.conductors[model.panel_conductor[members[0]]].name
         found = _interface_around(model, members, normals, interface)
         if found is None:
             medium = model.medium_of_surface(model.surfaces[model.surface_index[members[0]]])

@@ -14,8 +14,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .crossings import triangles_intersect
 from .mesh import (aspect_ratios, closed_pieces, edge_use, orient_consistently, pairs_within, signed_volume,
-                   triangles_intersect, winding_numbers)
+                   triangle_measures, winding_numbers)
 from .units import format_eng, metres_per
 
 #: Aspect ratio (1 = equilateral) above which a triangle is reported as a needle.
@@ -61,8 +62,8 @@ def _where(point, unit: str) -> str:
 def _parts(model):
     """[(kind, record, triangle indices)] for every conductor and interface."""
     out = []
-    for kind, records, labels in (("conductor", model.conductors, model.conductor_labels),
-                                  ("interface", model.interfaces, model.interface_labels)):
+    for kind, records, labels in (("conductor", model.conductors, model.panel_conductor),
+                                  ("interface", model.interfaces, model.panel_interface)):
         for k, record in enumerate(records):
             out.append((kind, record, np.flatnonzero(labels == k)))
     return out
@@ -178,7 +179,7 @@ def _owner_of_panels(model) -> tuple[np.ndarray, list[str]]:
 def _check_contacts(model, sizes, errors):
     """Different parts that share vertices (conductors only), cross, or nearly coincide."""
     owner, names = _owner_of_panels(model)
-    is_conductor = model.conductor_labels >= 0
+    is_conductor = model.panel_conductor >= 0
     vertex_owner = np.full(len(model.vertices), -1)
     reported = set()
     for part in np.unique(owner[is_conductor]):
@@ -248,8 +249,8 @@ def _check_ground(model, diagonal: float, errors) -> None:
     """Conductors strictly above the plane; interfaces may reach down to it (a substrate
     resting on the plane, its bottom face left out) but not below, and no panel may lie in it."""
     z0, scale, tol = model.ground_z, metres_per(model.unit), 1e-9 * diagonal
-    conductor_vertices = model.vertices[np.unique(model.triangles[model.conductor_labels >= 0])]
-    interface_vertices = model.vertices[np.unique(model.triangles[model.conductor_labels < 0])]
+    conductor_vertices = model.vertices[np.unique(model.triangles[model.panel_conductor >= 0])]
+    interface_vertices = model.vertices[np.unique(model.triangles[model.panel_conductor < 0])]
     for kind, points, limit in (("conductor", conductor_vertices, z0 + tol), ("interface", interface_vertices, z0 - tol)):
         bad = points[:, 2] <= limit
         if bad.any():
@@ -267,10 +268,8 @@ def _check_ground(model, diagonal: float, errors) -> None:
 def survey(model) -> Survey:
     """Measure every part of ``model`` and list errors and warnings."""
     parts = _parts(model)
-    corners = model.vertices[model.triangles]
-    edges = np.roll(corners, -1, axis=1) - corners
-    sizes = np.linalg.norm(edges, axis=2).max(axis=1)
-    areas = 0.5 * np.linalg.norm(np.cross(edges[:, 0], -edges[:, 2]), axis=1)
+    _, sizes, cross = triangle_measures(model.vertices, model.triangles)
+    areas = 0.5 * np.linalg.norm(cross, axis=1)
     aspects = aspect_ratios(model.vertices, model.triangles)
     errors, warnings = [], []
     _check_ground_and_size(model, errors)

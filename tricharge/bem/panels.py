@@ -13,7 +13,7 @@ from functools import cached_property
 
 import numpy as np
 
-from ..mesh import validate_surface
+from ..mesh import triangle_measures, validate_surface
 
 # Dunavant, "High degree efficient symmetrical Gaussian quadrature rules for the
 # triangle", Int. J. Numer. Meth. Eng. 21 (1985) 1129-1148, rules of degree 1, 2, 4, 5.
@@ -78,9 +78,12 @@ class Panels:
         return self.corners.mean(axis=1)
 
     @cached_property
+    def _measures(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        return triangle_measures(self.vertices, self.triangles)
+
+    @cached_property
     def _cross(self) -> np.ndarray:
-        c = self.corners
-        return np.cross(c[:, 1] - c[:, 0], c[:, 2] - c[:, 0])
+        return self._measures[2]
 
     @cached_property
     def areas(self) -> np.ndarray:
@@ -95,9 +98,7 @@ class Panels:
     @cached_property
     def sizes(self) -> np.ndarray:
         """(m,) float64, metres: panel diameter (longest edge)."""
-        c = self.corners
-        edges = np.stack([c[:, 1] - c[:, 0], c[:, 2] - c[:, 1], c[:, 0] - c[:, 2]], axis=1)
-        return np.linalg.norm(edges, axis=2).max(axis=1)
+        return self._measures[1]
 
     @cached_property
     def _quadrature_cache(self) -> dict:

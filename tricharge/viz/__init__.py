@@ -19,7 +19,7 @@ def field_picture(model, field, *, quantity: str = "field", log: bool = False, t
     if side not in ("outside", "inside"):
         raise ValueError(f"side must be outside or inside, got {side!r}")
     scale = metres_per(model.unit)
-    on = model.conductor_labels >= 0
+    on = model.panel_conductor >= 0
     surface = field.surface
     vertices = model.vertices / scale
     if quantity == "field":
@@ -31,7 +31,7 @@ def field_picture(model, field, *, quantity: str = "field", log: bool = False, t
     centroids = vertices[model.triangles].mean(axis=1)
     labels = []
     for k, name in enumerate(model.conductor_names):
-        mine = centroids[model.conductor_labels == k]
+        mine = centroids[model.panel_conductor == k]
         labels.append((name, mine[np.argmax(mine[:, 2])]))
     shown = [s for s in field.spots if s.rank <= top and (quantity == "field" or s.group < len(model.conductors))]
     markers = [(f"{field.parts[s.group]} #{s.rank}", np.array(s.location) / scale) for s in shown]
