@@ -61,7 +61,7 @@ def test_dipole_sums_agree_direct_and_multipole(monkeypatch):
     rng = np.random.default_rng(1)
     points, dipoles = rng.normal(size=(2500, 3)), rng.normal(size=(2500, 3))
     multipole = fmm.dipole_sums(points, dipoles, precision=1e-9)
-    monkeypatch.setattr(fmm, "DIRECT_LIMIT", 1e12)
+    monkeypatch.setattr(fmm, "DIPOLE_DIRECT_LIMIT", 1e12)
     direct = fmm.dipole_sums(points, dipoles)
     assert np.abs(direct - multipole).max() < 1e-8 * np.abs(direct).max()
 
@@ -203,3 +203,21 @@ def test_gmres_applies_the_operator_once_per_iteration_and_reports_the_true_resi
     assert len(calls) == solution.iterations  # restarts included: 4 per cycle, no residual passes
     true = np.linalg.norm(inner.matmat(solution.x) - rhs, axis=0) / np.linalg.norm(rhs, axis=0)
     assert solution.residual == pytest.approx(true.max(), rel=1e-3) and solution.converged
+
+
+
+def test_general_system_far_field_direct_and_multipole_agree(monkeypatch):
+    """The general system's far field is summed directly (each sum only where it is
+    needed) below the measured crossover and by the multipole library above it: both
+    apply the same operator, with a ground plane's images and a dielectric interface."""
+    from tricharge.bem.problem import problem_from_arrays
+    from tricharge.bem.system import FastSystem
+
+    v, t, labels = shapes.combine(shapes.sphere(1.0, 6, center=(0, 0, 3.0)), shapes.sphere(2.0, 6, center=(0, 0, 3.0)))
+    problem = problem_from_arrays(v, t, np.where(labels == 0, 0, -1), np.where(labels == 0, 4.0, 1.0),
+                                  np.where(labels == 1, -3.0 / 5.0, 0.0), ground_z=0.0)
+    x = np.random.default_rng(4).normal(size=(len(t), 2))
+    direct = FastSystem(problem, tol=1e-8).matmat(x)
+    monkeypatch.setattr(fmm, "DIRECT_LIMIT", 0)
+    multipole = FastSystem(problem, tol=1e-8).matmat(x)
+    assert np.abs(direct - multipole).max() < 1e-6 * np.abs(direct).max()

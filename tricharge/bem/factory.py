@@ -10,9 +10,10 @@ problem, measured here on 2 cores:
   is as fast as dense at 2,400 panels and 2-4x faster from 6,000; dense is kept up to
   3,000 because one LU serves every conductor;
 * with dielectric interfaces, a ground plane or floating parts (the general system of
-  :mod:`.system`): its matrix-free form has a weaker preconditioner and a wider near
-  field; on the 7,876-panel package demo it took 106 s (25 iterations) against 15 s
-  dense, so dense is kept up to 12,000 panels.
+  :mod:`.system`): its matrix-free form needs a wider near field and a two-level
+  preconditioner whose set-up dominates; on the 7,876-panel package demo it takes 20 s
+  (9 iterations; 16.6 s of it set-up) against 8.4 s dense (bench/package.py), so dense
+  is kept up to 12,000 panels (where a dense solve needs about 3.4 GiB).
 """
 
 from __future__ import annotations

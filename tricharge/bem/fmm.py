@@ -4,7 +4,9 @@ Only this module imports fmm3dpy. Sums here use the kernel ``1/|x - y|`` (fmm3dp
 is ``1/(4 pi |x - y|)``), charges in any unit, and skip a source that coincides with
 the evaluation point (fmm3dpy drops the self term when evaluating at sources).
 
-For small problems the sum is done directly (same results, no FMM setup cost).
+Up to a measured size the sum is done directly by a compiled kernel
+(:func:`tricharge.bem.kernels.direct_sums`): exact, and cheaper there than the multipole
+library's setup and passes.
 """
 
 from __future__ import annotations
@@ -13,8 +15,23 @@ import numpy as np
 
 from ..errors import MissingDependency
 
-#: Below this many source-target interactions the direct sum is faster than the FMM.
-DIRECT_LIMIT = 4e6
+#: Up to this many source-target interactions the compiled direct sum is faster than the
+#: multipole library on this machine (2 cores, idle): measured by bench/farsum.py, the
+#: crossover lies at about 24,000 points summed onto themselves (5.8e8 interactions;
+#: direct 3-8x faster at 5,000 points, 1.8x at 16,000, 0.8x at 32,000), with one or five
+#: densities, with or without gradients; the direct sum is also exact.
+DIRECT_LIMIT = 5e8
+
+#: The same for dipole sums, done directly in numpy blocks (their temporary memory grows
+#: with the source count, so they stay small).
+DIPOLE_DIRECT_LIMIT = 4e6
+
+
+def direct_is_cheaper(n_sources: int, n_targets: int) -> bool:
+    """Whether sums of ``n_sources`` charges at ``n_targets`` points go direct (below
+    :data:`DIRECT_LIMIT`); a direct sum also skips a source that coincides with a target,
+    which the multipole library does only when evaluating at the sources themselves."""
+    return n_sources * n_targets <= DIRECT_LIMIT
 
 
 def _fmm3dpy():
@@ -59,7 +76,7 @@ def potentials(sources, charges, targets=None, *, precision: float = 1e-4, gradi
     q, squeeze = _as_columns(charges)
     at_sources = targets is None
     points = sources if at_sources else np.asarray(targets, dtype=np.float64)
-    if len(sources) * len(points) <= DIRECT_LIMIT:
+    if direct_is_cheaper(len(sources), len(points)):
         phi, grad = direct_sums(sources, q, points, gradient)
     else:
         phi, grad = multipole_sums(sources, q, None if at_sources else points, precision, gradient)
@@ -70,24 +87,13 @@ def potentials(sources, charges, targets=None, *, precision: float = 1e-4, gradi
 
 def direct_sums(sources, q, points, gradient):
     """Potential (M, K) and gradient (M, K, 3) of charges ``q`` (N, K) at ``points`` by
-    direct summation in row blocks (coincident points skipped); ``gradient`` False gives None."""
-    from scipy.spatial.distance import cdist
+    direct summation (compiled, over all cores; coincident points skipped); ``gradient``
+    False gives None."""
+    from .kernels import direct_sums as compiled
 
-    k = q.shape[1]
-    phi = np.zeros((len(points), k))
-    grad = np.zeros((len(points), k, 3)) if gradient else None
-    for s in range(0, len(points), 1024):
-        x = points[s : s + 1024]
-        r = cdist(x, sources)
-        with np.errstate(divide="ignore"):
-            inv = np.where(r > 0, 1.0 / r, 0.0)
-        phi[s : s + 1024] = inv @ q
-        if gradient:
-            inv3 = inv**3
-            for c in range(k):
-                w = inv3 * q[:, c]
-                grad[s : s + 1024, c] = -(x * w.sum(axis=1)[:, None] - w @ sources)
-    return phi, grad
+    phi, grad = compiled(np.ascontiguousarray(sources, dtype=np.float64), np.ascontiguousarray(q, dtype=np.float64),
+                         np.ascontiguousarray(points, dtype=np.float64), bool(gradient))
+    return phi, (grad if gradient else None)
 
 
 def multipole_sums(sources, q, targets, precision, gradient):
@@ -124,7 +130,7 @@ def dipole_sums(points, dipoles, targets=None, *, precision: float = 1e-6) -> np
     d = d[:, None, :] if single else d
     at_points = targets is None
     targets = points if at_points else np.asarray(targets, dtype=np.float64)
-    if len(points) * len(targets) <= DIRECT_LIMIT:
+    if len(points) * len(targets) <= DIPOLE_DIRECT_LIMIT:
         out = np.zeros((len(targets), d.shape[1]))
         for s in range(0, len(targets), 1024):
             diff = points[None, :, :] - targets[s : s + 1024, None, :]  # [m, i] = y_i - x_m

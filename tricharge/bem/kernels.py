@@ -1,4 +1,6 @@
-"""Compiled (numba) kernel for the near-field potential integrals of many pairs.
+"""Compiled (numba) kernels: the near-field potential integrals of many pairs, and the
+direct far-field sums of point charges (below the size where the multipole library
+becomes cheaper, see :mod:`.fmm`).
 
 The same mathematics as :mod:`tricharge.bem.integrals` and
 :func:`tricharge.bem.operators.pair_integrals`, written with scalars only (small arrays
@@ -125,3 +127,43 @@ def near_values(targets, i, j, rel, corners, sizes, near_pts, near_w, mid_pts, m
             value -= _point_rule(x0, x1, x2, far_pts[b], far_w[b], 1e-9 * sizes[b])
         out[p] = value
     return out
+
+
+@_compiled(parallel=True, fastmath=True)
+def direct_sums(sources, q, points, gradient):
+    """``phi[m, k] = sum_j q[j, k] / |x_m - y_j|`` and, when ``gradient``, its gradient
+    ``grad[m, k, :]`` with respect to x_m, by direct summation over all pairs, the points
+    split over threads; a source at the point itself is skipped.
+
+    sources (N, 3), q (N, K), points (M, 3), all float64; returns phi (M, K) and grad
+    (M, K, 3) (zeros when not ``gradient``). The fast operator's far-field sum below the
+    size where the multipole library becomes cheaper (see :mod:`.fmm`).
+    """
+    m, n, k = points.shape[0], sources.shape[0], q.shape[1]
+    phi = np.zeros((m, k))
+    grad = np.zeros((m, k, 3) if gradient else (0, k, 3))
+    for a in prange(m):
+        x0, x1, x2 = points[a, 0], points[a, 1], points[a, 2]
+        acc = np.zeros(k)
+        g = np.zeros((k, 3))
+        for j in range(n):
+            d0, d1, d2 = x0 - sources[j, 0], x1 - sources[j, 1], x2 - sources[j, 2]
+            r2 = d0 * d0 + d1 * d1 + d2 * d2
+            if r2 == 0.0:
+                continue
+            inv = 1.0 / math.sqrt(r2)
+            inv3 = inv * inv * inv
+            for c in range(k):
+                acc[c] += q[j, c] * inv
+                if gradient:
+                    w = q[j, c] * inv3
+                    g[c, 0] -= w * d0
+                    g[c, 1] -= w * d1
+                    g[c, 2] -= w * d2
+        for c in range(k):
+            phi[a, c] = acc[c]
+            if gradient:
+                grad[a, c, 0] = g[c, 0]
+                grad[a, c, 1] = g[c, 1]
+                grad[a, c, 2] = g[c, 2]
+    return phi, grad

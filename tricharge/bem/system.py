@@ -171,8 +171,24 @@ class FastSystem(LinearOperator):
         if len(members):
             self.near_i[members, self.rows_i[members]] = values
 
+    def _far_sums(self, points, charges, need_grad: bool):
+        """The far field of every panel charge (and image): the potential at the conductor
+        centroids (Kc, K) and the gradient at the interface centroids (Ki, K, 3), or None.
+        Summed directly, each only where it is needed; by the multipole library, in one
+        pass at every source (it drops only a source's own term)."""
+        from .fmm import direct_is_cheaper, potentials
+
+        c = self.panels.centroids
+        if direct_is_cheaper(len(points), len(c)):
+            phi_c = potentials(points, charges, c[self.rows_c])
+            grad_i = potentials(points, charges, c[self.rows_i], gradient=True)[1] if need_grad else None
+            return phi_c, grad_i
+        if not need_grad:
+            return potentials(points, charges, precision=self.precision)[self.rows_c], None
+        phi, grad = potentials(points, charges, precision=self.precision, gradient=True)
+        return phi[self.rows_c], grad[self.rows_i]
+
     def _matmat(self, x):
-        from .fmm import potentials
 
         x = np.asarray(x, dtype=np.float64)
         x = x[:, None] if x.ndim == 1 else x
@@ -184,14 +200,11 @@ class FastSystem(LinearOperator):
             points = np.vstack([points, problem.images.centroids])
             charges = np.vstack([charges, -charges])
         need_grad = len(self.rows_i) > 0
-        if need_grad:
-            phi, grad = potentials(points, charges, precision=self.precision, gradient=True)
-        else:
-            phi, grad = potentials(points, charges, precision=self.precision), None
+        phi_c, grad_i = self._far_sums(points, charges, need_grad)
         out = np.zeros_like(x)
-        out[self.rows_c] = phi[self.rows_c] + self.near_c @ s
+        out[self.rows_c] = phi_c + self.near_c @ s
         if need_grad:
-            normal_field = -np.einsum("pkd,pd->pk", grad[self.rows_i], panels.normals[self.rows_i])
+            normal_field = -np.einsum("pkd,pd->pk", grad_i, panels.normals[self.rows_i])
             lam = problem.contrast[self.rows_i, None]
             out[self.rows_i] = 2.0 * np.pi * s[self.rows_i] + lam * (normal_field + self.near_i @ s)
         for f, k in enumerate(self.floating):
