@@ -221,3 +221,21 @@ def test_general_system_far_field_direct_and_multipole_agree(monkeypatch):
     monkeypatch.setattr(fmm, "DIRECT_LIMIT", 0)
     multipole = FastSystem(problem, tol=1e-8).matmat(x)
     assert np.abs(direct - multipole).max() < 1e-6 * np.abs(direct).max()
+
+
+def test_pair_search_split_over_threads_finds_the_same_pairs(monkeypatch):
+    """Large pair queries run in threads over slices of the targets; the pairs (and their
+    distances) are those of one query over all targets, on a graded mesh."""
+    from tricharge import mesh
+
+    panels = make_panels(*shapes.cube(1.0, 8, graded=True))
+    finder = mesh.PairFinder(panels.centroids, 3.0 * panels.sizes)
+    monkeypatch.setattr(mesh, "PARALLEL_QUERY", 10**9)
+    one = finder.query(panels.centroids)
+    monkeypatch.setattr(mesh, "PARALLEL_QUERY", 1)
+    monkeypatch.setattr(mesh.os, "cpu_count", lambda: 3)
+    split = finder.query(panels.centroids)
+    order_one, order_split = np.lexsort(one[:2]), np.lexsort(split[:2])
+    for a, b in zip(one, split):
+        np.testing.assert_array_equal(a[order_one], b[order_split])
+    assert len(one[0]) > len(panels)

@@ -6,6 +6,8 @@ vertices (n, 3) float64 metres, triangles (m, 3) int64.
 
 from __future__ import annotations
 
+import os
+
 import numpy as np
 
 from scipy.sparse import coo_matrix
@@ -24,6 +26,9 @@ MAX_COORDINATE = 1e9
 #: Vertex merging snaps coordinates to cubes this many tolerances wide (see
 #: :func:`merge_vertices`); the factor (1 + 1e-6) absorbs the rounding of the snapping.
 MERGE_CELL = 2.0 * (1.0 + 1e-6)
+
+#: Pair queries with at least this many targets are split over threads (our choice).
+PARALLEL_QUERY = 2000
 
 
 def validate_surface(vertices, triangles, *, source: str = "mesh") -> tuple[np.ndarray, np.ndarray]:
@@ -331,8 +336,21 @@ class PairFinder:
             self.groups.append((members, cKDTree(self.centers[members]), float(self.radii[members].max())))
 
     def query(self, targets) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """Pairs for ``targets`` (m, 3): target index i (m,), center index j, distance, all (p,)."""
+        """Pairs for ``targets`` (m, 3): target index i (m,), center index j, distance, all (p,).
+        Large queries are split over threads (the k-d tree search releases the GIL: 1.7x
+        on 2 cores, measured on the package demo's 15.5 million near pairs)."""
         targets = np.asarray(targets, dtype=np.float64)
+        workers = min(os.cpu_count() or 1, 8) if len(targets) >= PARALLEL_QUERY else 1
+        if workers == 1:
+            return self._query(targets, 0)
+        from concurrent.futures import ThreadPoolExecutor
+
+        bounds = np.linspace(0, len(targets), workers + 1).astype(np.int64)
+        with ThreadPoolExecutor(workers) as pool:
+            parts = list(pool.map(lambda k: self._query(targets[bounds[k]:bounds[k + 1]], bounds[k]), range(workers)))
+        return tuple(np.concatenate([part[n] for part in parts]) for n in range(3))
+
+    def _query(self, targets, first: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         target_tree = cKDTree(targets)
         found_i, found_j = [np.zeros(0, np.int64)], [np.zeros(0, np.int64)]
         for members, tree, radius in self.groups:
@@ -342,7 +360,7 @@ class PairFinder:
         i, j = np.concatenate(found_i), np.concatenate(found_j)
         distance = np.linalg.norm(targets[i] - self.centers[j], axis=1)
         keep = distance < self.radii[j]
-        return i[keep], j[keep], distance[keep]
+        return i[keep] + first, j[keep], distance[keep]
 
 
 def pairs_within(targets, centers, radii) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
