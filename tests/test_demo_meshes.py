@@ -123,3 +123,17 @@ def test_hv_ring_surrounds_the_rod_near_its_top(generated):
     assert 20.0 <= rod[:, 2].min() - disk[:, 2].max() <= 40.0        # the gap between tip and disk
     assert np.hypot(ring[:, 0], ring[:, 1]).min() > np.hypot(rod[:, 0], rod[:, 1]).max() + 10.0
     assert rod[:, 2].max() - 30.0 < ring[:, 2].mean() < rod[:, 2].max()
+
+
+def test_the_gmsh_system_packages_are_listed_alike_everywhere():
+    """The packages the gmsh wheel needs are named in the one-line error, the README and
+    CI: the same list in all three, so a user who follows any of them gets a working gmsh."""
+    from tricharge.io.cadsession import GMSH_SYSTEM_PACKAGES
+
+    root = MESHES.parent
+    wanted = set(GMSH_SYSTEM_PACKAGES.split())
+    ci = (root / ".ci" / "run").read_text()
+    listed = set(ci.split('packages="', 1)[1].split('"', 1)[0].split())
+    assert wanted <= listed
+    readme = (root / "README.md").read_text()
+    assert readme.count(GMSH_SYSTEM_PACKAGES) >= 2, "the test set-up line and the CAD section"

@@ -103,9 +103,9 @@ def test_unknown_unit_and_missing_file(tmp_path):
 
 
 def test_unknown_format(tmp_path):
-    path = tmp_path / "part.step"
-    path.write_text("ISO-10303-21;")
-    with pytest.raises(InputFileError, match=r"part.step: unknown mesh format '.step'; tricharge reads .msh, .stl"):
+    path = tmp_path / "part.sat"
+    path.write_text("700 0 1 0")
+    with pytest.raises(InputFileError, match=r"part.sat: unknown mesh format '.sat'; tricharge reads .msh, .stl.*\.step"):
         load(path)
 
 

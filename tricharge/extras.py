@@ -14,7 +14,7 @@ import json
 from .errors import MissingDependency
 
 #: Extra -> the modules it provides (names as imported).
-EXTRAS = {"viz": ("pyvista", "matplotlib"), "sweep": ("distributed",)}
+EXTRAS = {"viz": ("pyvista", "matplotlib"), "sweep": ("distributed",), "cad": ("gmsh",)}
 
 
 def _installed_from() -> tuple[str | None, bool]:

@@ -116,6 +116,7 @@ class Model:
     warnings : what the reader found suspicious but not wrong (a unit that looks wrong, ...);
         the geometry checks add theirs in ``survey.warnings``
     inputs : every file the model was read from (model file first, then meshes), as given
+    project : where refinement puts new vertices (CAD input: onto the CAD faces), or None
     check : run the geometry checks of :mod:`tricharge.survey` and raise MeshError on
         the first error (``False`` lets ``inspect`` show a broken model)
     problems : (set here) the errors those checks found
@@ -136,6 +137,7 @@ class Model:
     notes: tuple[str, ...] = ()
     warnings: tuple[str, ...] = ()
     inputs: tuple[str, ...] = ()
+    project: object = field(default=None, compare=False, repr=False)
     check: InitVar[bool] = True
     problems: tuple[str, ...] = field(init=False, default=())
 

@@ -56,7 +56,8 @@ def solve(model: Model, *, method: str = "auto", tol: float = 1e-6, progress=Non
     model and ``levels - 1`` uniform refinements of it and extrapolates; ``accuracy`` (a
     fraction, e.g. 0.005) refines adaptively until every entry that matters has a relative
     estimate below it or the next mesh would exceed ``max_panels``. Either way the result
-    carries ``error_estimate`` (farads) and ``study``; ``project`` moves new vertices onto
+    carries ``error_estimate`` (farads) and ``study``; ``project`` (default: the model's own,
+    which a CAD file gives) moves new vertices onto
     an exact surface (tests). Per-panel data stay on the model's own panels.
 
     >>> import tricharge
@@ -76,6 +77,7 @@ def solve(model: Model, *, method: str = "auto", tol: float = 1e-6, progress=Non
     check_solve_memory(model, method, finest, what="the finest level of the refinement study" if finest !=
                        model.n_panels else None)
     problem = problem_of(model)
+    project = model.project if project is None else project
     if accuracy is not None:
         if max_panels <= len(problem.panels):
             raise OptionError(f"{model.source}: the panel budget {max_panels:,} is not above the model's "

@@ -84,8 +84,9 @@ def plural(count: int, noun: str) -> str:
     return f"{count:,} {noun}{'' if count == 1 else 's'}"
 
 
-def result_report(result, *, source: str, unit: str, version: str) -> str:
-    """The full text the ``solve`` command prints."""
+def result_report(result, *, source: str, unit: str, version: str, meshing_seconds: float | None = None) -> str:
+    """The full text the ``solve`` command prints; ``meshing_seconds``: the time taken to
+    mesh CAD input, shown in the head line."""
     names = list(result.conductors)
     floating = f"; floating, at zero net charge: {printable(', '.join(result.floating))}" if result.floating else ""
     how = (f"fast solve ({result.iterations} GMRES iterations, residual {result.residual:.1e})"
@@ -95,7 +96,9 @@ def result_report(result, *, source: str, unit: str, version: str) -> str:
         how = (f"{result.study['kind']} refinement study to {levels[-1]:,} panels in {len(levels)} levels, "
                f"{how} on the finest,")
     head = (f"tricharge {version}: {printable(source)} (unit {unit}), {plural(len(names), 'conductor')}, "
-            f"{plural(result.n_panels, 'panel')}, {how} in {result.solve_time:.2f} s{floating}")
+            f"{plural(result.n_panels, 'panel')}"
+            + ("" if meshing_seconds is None else f" meshed from CAD in {meshing_seconds:.2f} s")
+            + f", {how} in {result.solve_time:.2f} s{floating}")
     errors = result.error_estimate
     reference = result.reference
     if errors is None:
@@ -141,8 +144,11 @@ def study_report(study: dict) -> str:
                      "change. Three levels give an extrapolated value and a tighter estimate.")
     lines += [f"  {printable(note)}" for note in study["notes"]]
     lines.append("  A to-reference capacitor's estimate is the sum of its row's estimates (a bound).")
-    lines.append(f"  Method: {ESTIMATE_METHOD}. The estimate is for the mesh's geometry: it says nothing about "
-                 "how well the mesh follows the real part.")
+    covers = study.get("covers", "")
+    lines.append(f"  Method: {ESTIMATE_METHOD}. " + (
+        "The estimate covers the geometry too: every refinement put its new vertices on the CAD surfaces."
+        if covers.startswith("geometry") else
+        "The estimate is for the mesh's geometry: it says nothing about how well the mesh follows the real part."))
     return "\n".join(lines)
 
 

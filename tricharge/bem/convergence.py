@@ -146,6 +146,8 @@ class Study:
     stop: str | None = None
     target: float | None = None
     notes: tuple[str, ...] = field(default_factory=tuple)
+    #: New vertices went onto the exact surface (CAD), so the estimate covers the geometry too.
+    on_exact_surface: bool = False
 
     def __repr__(self) -> str:
         return f"Study({self.kind}, panels {' -> '.join(map(str, self.panels))}, {self.extrapolation!r})"
@@ -155,7 +157,9 @@ class Study:
         return {"kind": self.kind, "panels_per_level": list(self.panels), "seconds_per_level": list(self.seconds),
                 "matrices_per_level": self.matrices.tolist(), "observed_order": np.where(
                     np.isfinite(e.order), e.order, None).tolist(), "status": e.status.tolist(),
-                "stop": self.stop, "target": self.target, "notes": list(self.notes)}
+                "stop": self.stop, "target": self.target, "notes": list(self.notes),
+                "covers": ("geometry and discretisation (new vertices on the exact surface)" if self.on_exact_surface
+                           else "discretisation of the mesh as given (not how well it follows the real part)")}
 
 
 
@@ -185,11 +189,11 @@ def _back_to_base(result, problem, chain):
                    panel_areas=problem.panels.areas, n_panels=n)
 
 
-def _finish(problem, results, chain, extrapolation, kind, stop=None, target=None, notes=()):
+def _finish(problem, results, chain, extrapolation, kind, stop=None, target=None, notes=(), exact=False):
     matrices = np.array([r.capacitance for r in results])
     base = _back_to_base(results[-1], problem, chain)
     study = Study(base, extrapolation, tuple(r.n_panels for r in results), matrices,
-                  tuple(r.solve_time for r in results), kind, stop, target, tuple(notes))
+                  tuple(r.solve_time for r in results), kind, stop, target, tuple(notes), exact)
     result = replace(base, capacitance=extrapolation.value, error_estimate=extrapolation.error, study=study.to_dict(),
                      solve_time=float(sum(r.solve_time for r in results)))
     return replace(study, result=result)
@@ -226,7 +230,7 @@ def uniform_study(problem, levels: int = 3, *, project=None, method: str = "auto
         results.append(solve_capacitance(current, method=method, tol=tol, start=_carried(results, parent),
                                          progress=_level_progress(progress, level, levels, len(current.panels))))
     extrapolation = richardson(np.array([r.capacitance for r in results]), 0.5 ** np.arange(levels))
-    return _finish(problem, results, chain, extrapolation, "uniform")
+    return _finish(problem, results, chain, extrapolation, "uniform", exact=project is not None)
 
 
 # -- adaptive refinement --------------------------------------------------------------------
@@ -310,4 +314,4 @@ def adaptive_study(problem, accuracy: float, *, max_panels: int = 200_000, proje
     if stop != "accuracy reached":
         notes.append(f"stopped at the panel budget ({max_panels:,}) with a worst relative estimate of "
                      f"{worst_relative(extrapolation):.2%} against the {accuracy:.2%} asked")
-    return _finish(problem, results, chain, extrapolation, "adaptive", stop, accuracy, notes)
+    return _finish(problem, results, chain, extrapolation, "adaptive", stop, accuracy, notes, exact=project is not None)

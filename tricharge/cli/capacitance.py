@@ -12,17 +12,21 @@ from ..errors import OptionError
 from ..names import printable
 from ..terminal import Progress, Terminal
 from ..units import parse_fraction
-from .common import (FILE, TEXT_FILE, cli, commit, json_option, load_model, method_option, parse_reductions,
-                     plan_outputs, quiet_option, tol_option, unit_option)
+from .common import (FILE, TEXT_FILE, cad_options, cli, commit, json_option, load_model, method_option,
+                     parse_reductions, plan_outputs, quiet_option, tol_option, unit_option)
 
 #: Built-in demos (our own invented scenarios), files in tricharge/data/ (links to meshes/).
-DEMOS = {"hv": "demo_hv.toml", "header": "demo_header.msh", "package": "demo_package.toml"}
+DEMOS = {"hv": "demo_hv.toml", "header": "demo_header.msh", "package": "demo_package.toml",
+         "bushing": "demo_bushing.toml"}
+#: Demos solved with a refinement study (CAD input: new vertices go onto the CAD surfaces).
+DEMO_STUDIES = {"bushing": dict(levels=2)}
 DEFAULT_DEMO = "hv"
 
 
 @cli.command()
 @click.argument("input_path", metavar="INPUT", type=click.Path(path_type=Path))
 @unit_option
+@cad_options
 @json_option
 @method_option
 @tol_option
@@ -103,7 +107,8 @@ def solve_and_report(input_path: Path, unit, plan, targets, terminal: Terminal, 
     result = full
     if reductions["nets"] or reductions["grounded"] or reductions["reference"]:
         result = full.reduced(**reductions)
-    terminal.say(result_report(result, source=input_path.name, unit=model.unit, version=__version__))
+    terminal.say(result_report(result, source=input_path.name, unit=model.unit, version=__version__,
+                               meshing_seconds=getattr(model.project, "meshing_seconds", None)))
     origin = outputs.provenance(model, command="solve")
     if with_sensitivity:
         from ..pipeline import sensitivity
@@ -128,20 +133,23 @@ def solve_and_report(input_path: Path, unit, plan, targets, terminal: Terminal, 
 @cli.command()
 @click.argument("input_path", metavar="INPUT", type=click.Path(path_type=Path))
 @unit_option
+@cad_options
 def inspect(input_path: Path, unit: str | None):
     """Show what tricharge makes of INPUT (a mesh or a .toml model file): parts, sizes, problems.
 
     Exit status 2 when the model has errors that stop a solve.
     """
     from ..errors import MeshError
-    from ..io.modelfile import load
+    from ..io.files import Outputs
     from ..terminal import survey_report
 
-    model = load(input_path, unit=unit, check=False)
+    plan = Outputs(inputs=[input_path])
+    model = load_model(input_path, unit, plan, Terminal(True), check=False)
     click.echo(survey_report(model, version=__version__))
     if model.problems:
         more = f" (and {len(model.problems) - 1} more, listed above)" if len(model.problems) > 1 else ""
         raise MeshError(model.problems[0] + more)
+    commit(plan, Terminal(False), lambda stage: [])  # --mesh-out, if given
 
 
 @cli.command()
@@ -156,6 +164,8 @@ def demo(name: str, json_path: Path | None, quiet: bool, inspect_only: bool):
     hv       a high-voltage rod with a grading ring facing a grounded disk, in air
     header   a three-pin header over a shield plate, homogeneous medium
     package  a four-lead package in mold compound over a ground plane
+    bushing  a rod with a shield ring through a grounded plate in an epoxy collar,
+             meshed from CAD (STEP) and solved with an error estimate (cad extra)
     """
     with resources.as_file(resources.files("tricharge") / "data" / DEMOS[name]) as path:
         if inspect_only:
@@ -163,4 +173,4 @@ def demo(name: str, json_path: Path | None, quiet: bool, inspect_only: bool):
             return
         plan, targets = plan_outputs(path, {"json": ("--json", json_path, True)})
         solve_and_report(path, "mm" if path.suffix == ".msh" else None, plan, targets,
-                          Terminal(quiet, plan.to_stdout))
+                          Terminal(quiet, plan.to_stdout), study=DEMO_STUDIES.get(name))

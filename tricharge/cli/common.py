@@ -30,12 +30,21 @@ def load_model(input_path: Path, unit: str | None, plan, terminal: Terminal, *, 
     (shown when the run has succeeded, see :func:`commit`). With ``method``, a solve that
     cannot fit in memory is refused as soon as the panels are counted, before the
     geometry checks."""
+    from ..io.cad import meshing
     from ..io.modelfile import load
     from ..pipeline import check_panel_memory
+    from ..terminal import Progress
 
     name = printable(input_path.name)
     precheck = None if method is None else (lambda n_panels: check_panel_memory(n_panels, method, name))
-    model = load(input_path, unit=unit, check=check, precheck=precheck)
+    settings = click.get_current_context().meta.get("cad")
+    progress = Progress(terminal.quiet)
+    try:
+        with meshing(cad_meshing(settings, unit, progress)):
+            model = load(input_path, unit=unit, check=check, precheck=precheck)
+    finally:
+        progress.close()
+    _plan_mesh_out(plan, model, settings)
     plan.add_inputs(model.inputs)
     for warning in model.warnings + (model.survey.warnings if check else ()):
         terminal.warn(warning)
@@ -45,10 +54,12 @@ def load_model(input_path: Path, unit: str | None, plan, terminal: Terminal, *, 
 def commit(plan, terminal: Terminal, stage_all) -> None:
     """Stage every output with ``stage_all(stage) -> notes``, write them together, then
     show the warnings kept and say what was written. Every command ends here."""
-    if not plan.targets:
+    if not plan.targets and not plan.staged_early:
         terminal.flush_warnings()
         return
     with plan.transaction() as stage:
+        for write in plan.staged_early:
+            write(stage)
         notes = stage_all(stage) or []
     terminal.flush_warnings()
     terminal.say("")
@@ -108,3 +119,62 @@ def parse_pairs(values, parse, what: str) -> dict:
 
 def parse_voltages(volts) -> dict:
     return parse_pairs(volts, lambda v, what: parse_quantity(v, "V", what=what), "--volts")
+
+
+def _keep_cad(ctx, param, value):
+    ctx.meta.setdefault("cad", {})[param.name] = value
+    return value
+
+
+def cad_options(command):
+    """Options for meshing CAD input (STEP, IGES, BREP), kept in the click context; a
+    model file's [meshing] table fills in those not given."""
+    def option(*names, **kw):
+        return click.option(*names, expose_value=False, callback=_keep_cad, **kw)
+
+    options = [
+        option("--panel-size", "panel_size", metavar="LENGTH",
+               help="CAD input: target panel size, e.g. 0.2mm (a number is in --unit) [default: a twentieth of "
+                    "the model's size]."),
+        option("--per-radian", "per_radian", type=click.FloatRange(0.1, 100), metavar="N",
+               help="CAD input: panels per radian where surfaces curve [default: 2]."),
+        option("--across-gaps", "across_gaps", type=click.IntRange(0, 100), metavar="N",
+               help="CAD input: at least N panels across every gap between two parts (0: off) [default: 3]."),
+        option("--edge-grading", "edge_grading", type=click.FloatRange(0.01, 1.0), metavar="F",
+               help="CAD input: panels on sharp edges F times the panel size (1: off) [default: 0.3]."),
+        option("--mesh-out", "mesh_out", type=click.Path(dir_okay=False, path_type=Path),
+               help="CAD input: also write the mesh made from it (.msh, names as physical groups)."),
+    ]
+    for one in reversed(options):
+        command = one(command)
+    return command
+
+
+def cad_meshing(settings: dict | None, unit: str | None, progress=None):
+    """The :class:`~tricharge.io.cadmesh.Meshing` of the CAD options (lengths to metres)."""
+    from ..io.cadmesh import Meshing, parse_length
+
+    settings = settings or {}
+    size = settings.get("panel_size")
+    if size is not None:
+        size = parse_length(size, unit or "m", "--panel-size")
+    return Meshing(size, settings.get("per_radian"), settings.get("across_gaps"), settings.get("edge_grading"),
+                   progress=progress, unit=unit)
+
+
+def _plan_mesh_out(plan, model, settings) -> None:
+    """The CAD options need CAD input (given with a mesh they would be ignored); --mesh-out
+    is checked now (it must not name an input) and written with the run's outputs."""
+    given = [f"--{name.replace('_', '-')}" for name, value in (settings or {}).items() if value is not None]
+    if given and model.project is None:
+        raise OptionError(f"{' and '.join(given)} {'is' if len(given) == 1 else 'are'} for CAD input (.step .stp .iges "
+                          f".igs .brep); this input is a mesh already: leave {'it' if len(given) == 1 else 'them'} out")
+    path = (settings or {}).get("mesh_out")
+    if path is None:
+        return
+    if path.suffix.lower() != ".msh":
+        raise OptionError(f"--mesh-out {printable(path)}: write a Gmsh .msh file (end the name with .msh)")
+    from ..io.export import write_gmsh
+
+    target = plan.add("--mesh-out", path, text=False)
+    plan.staged_early.append(lambda stage: stage.file(target, lambda out: write_gmsh(out, model)))

@@ -11,12 +11,13 @@ from .. import __version__
 from ..errors import OptionError
 from ..terminal import Progress, Terminal, placement_notes
 from ..units import parse_quantity
-from .common import (FILE, TEXT_FILE, cautions_option, cli, commit, json_option, load_model, method_option,
-                     parse_pairs, parse_voltages, plan_outputs, quiet_option, unit_option, volts_option)
+from .common import (FILE, TEXT_FILE, cad_options, cautions_option, cli, commit, json_option, load_model,
+                     method_option, parse_pairs, parse_voltages, plan_outputs, quiet_option, unit_option, volts_option)
 
 @cli.command()
 @click.argument("input_path", metavar="INPUT", type=click.Path(path_type=Path))
 @unit_option
+@cad_options
 @volts_option
 @click.option("--withstand", multiple=True, metavar="MEDIUM=STRENGTH",
               help="Withstand field strength of a medium, e.g. air=3kV/mm, for margins (repeatable).")
@@ -116,6 +117,7 @@ def line_chart(model, requests, values, input_path: Path, line: str) -> bytes:
 @cli.command()
 @click.argument("input_path", metavar="INPUT", type=click.Path(path_type=Path))
 @unit_option
+@cad_options
 @volts_option
 @click.option("--png", "png_path", type=FILE, help="Write the picture here.")
 @click.option("--quantity", type=click.Choice(["field", "charge"]), default="field", show_default=True,
@@ -178,6 +180,7 @@ def view(input_path: Path, unit, volts, png_path, quantity, log_scale, view_name
 @click.option("--html", "html_path", type=TEXT_FILE, required=True,
               help="Write the report here (one self-contained file; - for standard output).")
 @unit_option
+@cad_options
 @volts_option
 @click.option("--withstand", multiple=True, metavar="MEDIUM=STRENGTH",
               help="Withstand field strength of a medium, e.g. air=3kV/mm, for margins (repeatable).")

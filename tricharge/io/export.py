@@ -119,3 +119,20 @@ def write_vtu(path, vertices, triangles, cell_data: dict, field_data: dict | Non
             text = handle.read()
         with open(path, "w", encoding="utf-8") as handle:
             handle.write(text.replace("<UnstructuredGrid>", f"<UnstructuredGrid>\n<FieldData>{arrays}</FieldData>", 1))
+
+
+def write_gmsh(path, model) -> None:
+    """The model's triangles as a Gmsh 2.2 mesh: coordinates in the model's unit, one
+    physical surface group per named surface (names with quotes and control characters
+    made safe), so any mesh viewer shows it and tricharge reads it back with --unit."""
+    import meshio
+
+    from ..names import printable
+    from ..units import metres_per
+
+    tags = np.asarray(model.surface_index, dtype=np.int64) + 1
+    names = [printable(name).replace('"', "'") for name in model.surfaces]
+    mesh = meshio.Mesh(np.asarray(model.vertices) / metres_per(model.unit), [("triangle", np.asarray(model.triangles))],
+                       cell_data={"gmsh:physical": [tags], "gmsh:geometrical": [tags]},
+                       field_data={name: np.array([k + 1, 2]) for k, name in enumerate(names)})
+    meshio.write(str(path), mesh, file_format="gmsh22", binary=False)

@@ -109,6 +109,9 @@ class Outputs:
     inputs: list = field(default_factory=list)
     targets: list = field(default_factory=list)
     written: list = field(default_factory=list)
+    #: ``stage -> None`` steps that write outputs found while reading (the CAD mesh), run
+    #: in the transaction of :func:`tricharge.cli.common.commit`.
+    staged_early: list = field(default_factory=list)
 
     def add(self, option: str, path, *, text: bool = True) -> Target | None:
         """Check the output ``path`` named by ``option`` and remember it (None passes through).

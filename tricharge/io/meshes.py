@@ -12,7 +12,8 @@ surface naming:
 * a file without groups read alone: each connected piece is a surface named
   ``c1, c2, ...`` in the order of each piece's lowest triangle index;
 * several files at once: a file without groups is one surface named after the file
-  (``lead1.stl`` gives ``lead1``), so one file per conductor just works.
+  (``lead1.stl`` gives ``lead1``), so one file per conductor just works;
+* CAD files (STEP, IGES, BREP): meshed by gmsh, one surface per solid (:mod:`.cad`).
 
 Before anything is read whole, files are checked against the input limits
 (:mod:`.limits`) and formats read by meshio are pre-scanned for counts that cannot fit and
@@ -36,14 +37,17 @@ from ..mesh import connected_components, merge_vertices
 from ..model import Conductor, Model
 from ..polygons import PolygonError, triangulate_polygons
 from ..units import metres_per
+from .cad import CAD_ENDINGS, read_cad
+from .cadproject import combined_projection
 from .gmshscan import check_gmsh_counts, physical_names
 from .limits import check_input_file
+from .unitguess import unit_warnings
 from .rawsurface import RawSurface, no_triangles, unreadable
 from .textmeshes import read_obj, read_ply, read_stl
 from .vtkscan import scan_vtk_legacy, scan_vtu
 
 __all__ = ["FORMATS", "MeshFormat", "RawSurface", "SurfaceMesh", "check_input_file", "format_for", "mesh_endings",
-           "read_mesh", "read_raw", "read_surfaces", "read_vtk_xml", "split_polygons", "unit_warnings"]
+           "read_mesh", "read_raw", "read_surfaces", "read_vtk_xml", "split_polygons"]
 
 #: Vertices closer than this fraction of the bounding-box diagonal are merged.
 MERGE_TOLERANCE = 1e-9
@@ -74,6 +78,7 @@ class SurfaceMesh:
     notes: tuple[str, ...]
     source: str
     paths: tuple[str, ...] = ()
+    project: object = None
 
 
 # -- helpers shared by the readers -----------------------------------------------------
@@ -250,6 +255,7 @@ FORMATS: list[MeshFormat] = [
     MeshFormat("PLY", (".ply",), read_ply),
     MeshFormat("VTK legacy", (".vtk",), partial(_read_vtk, module="vtk", kind="VTK")),
     MeshFormat("VTK XML", (".vtu",), partial(_read_vtk, module="vtu", kind="VTU")),
+    MeshFormat("CAD (STEP, IGES, BREP; meshed by gmsh)", CAD_ENDINGS, read_cad),
 ]
 
 
@@ -335,38 +341,18 @@ def read_surfaces(paths, *, unit: str = "m") -> SurfaceMesh:
         raise InputFileError("no mesh file given; name at least one")
     scale = metres_per(unit)
     raws = [read_raw(p) for p in paths]
+    for raw in raws:
+        raw.points = raw.points * (1.0 if raw.in_metres else scale)
     points, triangles, index, names, aliases, notes = _combine(raws, paths)
     if len(names) > MAX_SURFACES:
         raise MeshError(f"{', '.join(str(p) for p in paths)}: the mesh has {len(names):,} surfaces (named groups, or "
                         f"separate pieces when there are no groups), more than the {MAX_SURFACES:,} tricharge handles; "
                         "join the pieces of each conductor into one named group (Gmsh physical group, OBJ g)")
-    points = points * scale
     source = ", ".join(str(p) for p in paths)
     if len(raws) > 1:  # vertices shared between files
         points, triangles = _merged(points, triangles)
-    return SurfaceMesh(points, triangles, index, names, aliases, notes, source, tuple(str(p) for p in paths))
-
-
-#: Without a unit, a model at least this many metres across (bounding-box diagonal) is
-#: reported as possibly in millimetres: the parts tricharge is made for (packages,
-#: boards, insulators) are centimetres to decimetres, so their millimetre coordinates
-#: read as metres come out 1 m to 1 km across, while a real model of a metre or more
-#: is rare and only gets a harmless warning (common practice, no source).
-UNITLESS_WARNING_SIZE = 1.0
-
-
-def unit_warnings(source: str, vertices: np.ndarray, triangles: np.ndarray, fix: str) -> tuple[str, ...]:
-    """The warning for coordinates read as metres for want of a unit when the model is
-    UNITLESS_WARNING_SIZE or more across; ``fix`` says how to give the unit."""
-    used = vertices[np.unique(triangles)] if len(triangles) else vertices[:0]
-    if not used.size or not np.isfinite(used).all():
-        return ()
-    with np.errstate(over="ignore"):
-        diagonal = float(np.linalg.norm(np.ptp(used, axis=0)))
-    if not UNITLESS_WARNING_SIZE <= diagonal < np.inf:
-        return ()
-    return (f"{source}: no unit given, coordinates read as metres: the model is {diagonal:.3g} m across; if they "
-            f"are millimetres, {fix}",)
+    return SurfaceMesh(points, triangles, index, names, aliases, notes, source, tuple(str(p) for p in paths),
+                       combined_projection(raws, scale, points))
 
 
 def read_mesh(paths, *, unit: str | None = None, check: bool = True, precheck=None) -> Model:
@@ -385,10 +371,11 @@ def read_mesh(paths, *, unit: str | None = None, check: bool = True, precheck=No
     if precheck is not None:
         precheck(len(mesh.triangles))
     conductors = tuple(Conductor(name, (name,)) for name in mesh.surfaces)
+    unit = unit or getattr(mesh.project, "unit", None)  # CAD files that carry a unit are shown in mm
     warnings = () if unit else unit_warnings(mesh.source, mesh.vertices, mesh.triangles, "add --unit mm")
     return Model(mesh.vertices, mesh.triangles, mesh.surface_index, mesh.surfaces, conductors,
                  unit=unit or "m", source=mesh.source, notes=mesh.notes, warnings=warnings, inputs=mesh.paths,
-                 check=check)
+                 project=mesh.project, check=check)
 
 
 def read_vtk_xml(path):

@@ -2,7 +2,7 @@
 
 Example (every key is optional except ``mesh``)::
 
-    mesh = "package.msh"          # or ["lead1.stl", "lead2.stl"]; relative to this file
+    mesh = "package.msh"          # or ["lead1.stl", "lead2.stl"], or a CAD file; relative to this file
     unit = "mm"                   # m, cm, mm, um, in, mil
     background = "air"            # medium outside every dielectric body (default vacuum)
 
@@ -24,10 +24,18 @@ Example (every key is optional except ``mesh``)::
     inside = "mold"               # medium behind the surface (inside a closed body)
     outside = "air"               # medium the surface normals point into
 
+    [meshing]                     # CAD files only (.step .stp .iges .igs .brep)
+    panel_size = "0.5 mm"         # target panel size (a number is in `unit`)
+    per_radian = 2                # panels per radian where surfaces curve
+    across_gaps = 3               # at least this many panels across gaps between parts
+    edge_grading = 0.3            # panels on sharp edges, a fraction of panel_size (1: off)
+
 Without a ``[conductors]`` table every surface that is not part of an interface is a
 conductor of the same name. Surfaces are named by the mesh: Gmsh physical group names
 (or their numbers), OBJ groups, VTK region numbers, file names when several files are
-given, and ``c1, c2, ...`` for the connected pieces of a single file without groups.
+given, and ``c1, c2, ...`` for the connected pieces of a single file without groups;
+CAD files name their solids (see :mod:`tricharge.io.cadmodel` for what a solid's name
+stands for).
 """
 
 from __future__ import annotations
@@ -42,10 +50,14 @@ from ..errors import OptionError, TrichargeError
 from ..mesh import MAX_COORDINATE
 from ..model import MAX_PERMITTIVITY, VACUUM, Conductor, Interface, Medium, Model
 from ..units import LENGTH_UNITS, metres_per, parse_quantity
+from .cadmodel import complete as complete_cad
+from .cadmodel import file_meshing
+from .cadmodel import members as cad_members
 from .limits import check_input_file, read_limited
-from .meshes import read_surfaces, unit_warnings
+from .meshes import read_surfaces
+from .unitguess import unit_warnings
 
-TOP_KEYS = ("mesh", "unit", "background", "ground", "media", "conductors", "interfaces")
+TOP_KEYS = ("mesh", "unit", "background", "ground", "media", "conductors", "interfaces", "meshing")
 GROUND_KEYS = ("z",)
 CONDUCTOR_KEYS = ("surfaces", "medium", "volts", "floating", "net_charge")
 INTERFACE_KEYS = ("surfaces", "inside", "outside")
@@ -80,9 +92,13 @@ def _string_list(path: Path, where: str, value) -> list[str]:
     return [str(item) for item in value]
 
 
-def _resolve(path: Path, where: str, names: list[str], surfaces: tuple[str, ...], aliases: dict) -> tuple[str, ...]:
+def _resolve(path: Path, where: str, names: list[str], surfaces: tuple[str, ...], aliases: dict,
+             members: dict | None = None) -> tuple[str, ...]:
     resolved = []
     for name in names:
+        if members and name in members:  # a CAD solid: all its surfaces (io/cadmodel.py)
+            resolved.extend(members[name])
+            continue
         target = name if name in surfaces else aliases.get(name)
         if target is None:
             close = difflib.get_close_matches(name, surfaces, n=1)
@@ -145,12 +161,12 @@ def _quantity(path: Path, where: str, value, unit: str) -> float:
     return number
 
 
-def _conductor(path, name, spec, surfaces, aliases, known_media):
+def _conductor(path, name, spec, surfaces, aliases, known_media, members=None):
     where = f"conductors.{name}"
     _expect(path, where, spec, dict, "a table")
     _check_keys(path, where + ".", spec, CONDUCTOR_KEYS)
     own = _resolve(path, where + ".surfaces", _string_list(path, where + ".surfaces", spec.get("surfaces", [name])),
-                   surfaces, aliases)
+                   surfaces, aliases, members)
     medium = spec.get("medium")
     media = {}
     if isinstance(medium, str):
@@ -215,7 +231,9 @@ def load_model_file(path, *, unit: str | None = None, check: bool = True, preche
         raise ModelFileError(f"{path}: [ground] needs z = height of the plane, in {file_unit}")
     ground_z = None if "z" not in ground else _height(path, ground["z"], file_unit)
 
-    mesh = _read_meshes(path, meshes, file_unit)
+    with file_meshing(path, data, file_unit):
+        mesh = _read_meshes(path, meshes, file_unit)
+    members = cad_members(mesh.project)
     if precheck is not None:
         precheck(len(mesh.triangles))
     warnings = () if "unit" in data or unit else unit_warnings(str(path), mesh.vertices, mesh.triangles,
@@ -227,7 +245,7 @@ def load_model_file(path, *, unit: str | None = None, check: bool = True, preche
         _check_keys(path, where + ".", spec, INTERFACE_KEYS)
         own = _resolve(path, where + ".surfaces",
                        _string_list(path, where + ".surfaces", spec.get("surfaces", [name])), mesh.surfaces,
-                       mesh.aliases)
+                       mesh.aliases, members)
         sides = []
         for side in ("inside", "outside"):
             if side not in spec:
@@ -246,12 +264,14 @@ def load_model_file(path, *, unit: str | None = None, check: bool = True, preche
         conductors = [Conductor(s, (s,)) for s in mesh.surfaces if s not in claimed]
     else:
         for name, spec in conductor_specs.items():
-            conductor, media_map = _conductor(path, name, spec, mesh.surfaces, mesh.aliases, known_media)
+            conductor, media_map = _conductor(path, name, spec, mesh.surfaces, mesh.aliases, known_media, members)
             conductors.append(conductor)
             conductor_media.update(media_map)
+    interfaces, conductors, conductor_media = complete_cad(mesh.project, data, mesh.surfaces, interfaces, conductors,
+                                                           conductor_media, default=conductor_specs is None)
     return Model(mesh.vertices, mesh.triangles, mesh.surface_index, mesh.surfaces, tuple(conductors),
-                 tuple(interfaces), media, background, conductor_media, ground_z, file_unit,
-                 str(path), mesh.notes, warnings, inputs=(str(path),) + mesh.paths, check=check)
+                 tuple(interfaces), media, background, conductor_media, ground_z, file_unit, str(path), mesh.notes,
+                 warnings, inputs=(str(path),) + mesh.paths, project=mesh.project, check=check)
 
 
 def _read_meshes(path: Path, meshes: list[str], unit: str):

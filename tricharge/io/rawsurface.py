@@ -20,6 +20,8 @@ class RawSurface:
     group_names : one name per group
     aliases : other references for a group (e.g. its tag number) -> group name
     notes : what was skipped or changed, for the user
+    in_metres : the points are already in metres (CAD files that carry their unit)
+    cad : the CAD faces the triangles were meshed from (:class:`~tricharge.io.cadproject.CadFaces`)
     """
 
     points: np.ndarray
@@ -28,6 +30,8 @@ class RawSurface:
     group_names: list[str] = field(default_factory=list)
     aliases: dict[str, str] = field(default_factory=dict)
     notes: list[str] = field(default_factory=list)
+    in_metres: bool = False
+    cad: object = None
 
 
 def unreadable(path: Path, kind: str, exc: BaseException) -> InputFileError:

@@ -113,7 +113,8 @@ def _estimate_line(cap: dict) -> str:
     worst = float(np.max(e[matters] / c[matters]))
     study = cap["refinement_study"]
     return (f"Largest estimated error: {worst:.2%} of its entry ({study['kind']} refinement study, panels "
-            + " -> ".join(f"{n:,}" for n in study["panels_per_level"]) + ").")
+            + " -> ".join(f"{n:,}" for n in study["panels_per_level"])
+            + f"). The estimate covers the {study.get('covers', 'discretisation of the mesh as given')}.")
 
 
 def _at_a_glance(data: dict) -> list[str]:
