@@ -7,7 +7,7 @@ Prints figures; it never passes or fails. Run from the repository root:
 For N random points summed onto themselves (the fast operator's far field: every panel's
 charge at every panel), with one density and no gradient, one with gradients (the
 general system's normal-D rows), and five with gradients (five conductors in one pass):
-seconds of the compiled direct sum (bem/kernels.direct_sums, all cores) and of one
+seconds of the compiled direct sum (bem/fmm.direct_sums, all cores) and of one
 fmm3dpy pass at the precision the solver asks for at tol 1e-6 (1e-4), their ratio, and
 the largest difference relative to the largest value. The size where the ratio crosses
 1 sets ``DIRECT_LIMIT`` in bem/fmm.py (in source-target interactions, N^2 here).
@@ -21,7 +21,7 @@ import time
 import numpy as np
 
 from tricharge.bem import fmm
-from tricharge.bem.kernels import direct_sums
+from tricharge.bem.fmm import direct_sums
 
 
 def best_of(repeats: int, function, *args):

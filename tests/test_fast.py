@@ -11,7 +11,7 @@ from tricharge.bem.capacitance import capacitance_matrix
 from tricharge.bem.results import FOUR_PI_EPS0
 from tricharge.bem.integrals import point_rule_potential, triangle_potential
 from tricharge.bem.kernels import near_values
-from tricharge.bem.factory import AUTO_DENSE_LIMIT, make_operator
+from tricharge.bem.factory import make_operator
 from tricharge.bem.nearfield import FAST_POLICY, kernel_arrays, near_pairs
 from tricharge.bem.operators import DenseSingleLayer, FastSingleLayer
 from tricharge.bem.problem import problem_from_arrays
@@ -81,6 +81,59 @@ def test_compiled_kernel_matches_numpy_integrals():
     np.testing.assert_allclose(compiled, reference, rtol=1e-12)
 
 
+@pytest.mark.smoke
+def test_compiled_normal_field_kernel_matches_numpy_integrals():
+    """The interface rows' near corrections (normal field, closed form within 2 panel
+    sizes, Dunavant rules beyond, minus the one-point far rule) against the numpy
+    integrals of the same rules, at centroids (the principal value on a panel itself)
+    and at points off the surface, along tilted target normals."""
+    from tricharge.bem.kernels import near_normal_field_values
+    from tricharge.bem.nearfield import GENERAL_FAST_POLICY, pair_integrals
+
+    panels = make_panels(*shapes.cube(1.0, 6, graded=True))
+    rng = np.random.default_rng(5)
+    targets = np.vstack([panels.centroids, panels.centroids + 0.03 * rng.normal(size=panels.centroids.shape)])
+    normals = rng.normal(size=targets.shape)
+    normals /= np.linalg.norm(normals, axis=1, keepdims=True)
+    policy = GENERAL_FAST_POLICY
+    i, j, rel = near_pairs(targets, panels, policy.corrected_within)
+    compiled = near_normal_field_values(targets, normals, i, j, rel, *kernel_arrays(panels, policy), True)
+    reference = np.einsum("pd,pd->p", pair_integrals(targets[i], panels, j, rel, policy, "field", minus_far=True),
+                          normals[i])
+    assert (rel < policy.closed_form_within).sum() > 1000 and (rel > policy.near_within).sum() > 1000
+    np.testing.assert_allclose(compiled, reference, rtol=1e-11, atol=1e-12 * np.abs(reference).max())
+
+
+@pytest.mark.smoke
+@pytest.mark.parametrize("apart", [1e-6, 1e7])
+def test_the_grid_pair_search_finds_the_pairs_the_k_d_trees_find(apart, monkeypatch):
+    """The compiled grid search against the k-d tree search, as sets of (target, centre,
+    distance): radii graded over four powers of two, targets inside, around and far
+    outside the centres' box, and two tiny centres ``apart`` metres from each other:
+    1e-6 is ten of their cubes, 1e7 too many cubes to number, so the k-d trees answer
+    for that group."""
+    from tricharge.bem import nearfield
+    from tricharge.mesh import pairs_within
+
+    rng = np.random.default_rng(11)
+    centers = rng.uniform(-1, 1, size=(3000, 3))
+    radii = 0.05 * 2.0 ** rng.uniform(0, 4, size=3000)
+    centers[:2], radii[:2] = [(1.0, 0, 0), (1.0 + apart, 0, 0)], 1e-7
+    targets = np.vstack([rng.uniform(-1.5, 1.5, size=(2000, 3)), [[50.0, 0, 0], [1.0 + apart, 0, 1e-8]]])
+    calls = []
+    monkeypatch.setattr(nearfield, "pairs_within", lambda *a: calls.append(1) or pairs_within(*a))
+    found = nearfield.pairs_in_grid(targets, centers, radii)
+    expected = pairs_within(targets, centers, radii)
+    assert len(found[0]) == len(expected[0]) > 10_000
+    assert len(calls) == (apart > 1)
+    key = lambda r: np.lexsort((r[1], r[0]))  # noqa: E731
+    a, b = key(found), key(expected)
+    np.testing.assert_array_equal(found[0][a], expected[0][b])
+    np.testing.assert_array_equal(found[1][a], expected[1][b])
+    np.testing.assert_allclose(found[2][a], expected[2][b], rtol=1e-15)
+    assert ((found[0] == 2001) & (found[1] == 1)).any()
+
+
 def test_near_field_storage_grows_linearly():
     per_panel = []
     for frequency in (10, 20):
@@ -143,11 +196,28 @@ def test_lockstep_gmres_equals_column_by_column():
     assert iterations.shape == (3,)
 
 
-def test_auto_picks_by_panel_count():
-    small = problem_from_arrays(*shapes.sphere(1.0, 6), np.zeros(720, np.int64))
-    large = problem_from_arrays(*shapes.sphere(1.0, 14), np.zeros(3920, np.int64))
-    assert len(small.panels) <= AUTO_DENSE_LIMIT < len(large.panels)
-    assert make_operator(small).method == "dense" and make_operator(large).method == "fast"
+def test_auto_picks_the_way_estimated_cheaper_and_says_why(monkeypatch):
+    """A small sphere is stored (cheap, and the more accurate); an 8,000-panel one is
+    matrix-free (measured for 3,920 panels: 1.3 s stored against 0.4 s, bench/auto.py);
+    the choice carries its reason. A stored matrix that would not fit in memory is never
+    chosen."""
+    from tricharge import resources
+    from tricharge.bem import cost
+
+    small = problem_from_arrays(*shapes.sphere(1.0, 4), np.zeros(320, np.int64))
+    large = problem_from_arrays(*shapes.sphere(1.0, 20), np.zeros(8000, np.int64))
+    picked = {name: make_operator(problem) for name, problem in (("small", small), ("large", large))}
+    assert picked["small"].method == "dense" and picked["large"].method == "fast"
+    for operator in picked.values():
+        seconds = operator.choice.seconds
+        assert operator.choice.reason.startswith("auto: estimated ") and "stored against" in operator.choice.reason
+        cheaper = min(seconds, key=seconds.get)
+        assert operator.method == cheaper or seconds["dense"] <= cost.AFFORDABLE_SECONDS
+    assert picked["large"].choice.seconds["dense"] > cost.AFFORDABLE_SECONDS
+    assert make_operator(large, "dense").choice.reason == ""
+    monkeypatch.setattr(resources, "available_memory", lambda: 1000)
+    cramped = make_operator(small)
+    assert cramped.method == "fast" and "would not fit in memory" in cramped.choice.reason
     with pytest.raises(ValueError, match="method must be auto, dense or fast"):
         make_operator(small, "quick")
 
@@ -168,9 +238,11 @@ def test_cli_method_in_json_and_interrupt_leaves_nothing(tmp_path, monkeypatch, 
     trimesh.Trimesh(*shapes.sphere(1.0, 14), process=False).export(path)
     out = tmp_path / "r.json"
     assert main(["solve", str(path), "--json", str(out), "-q"]) == 0
-    assert json.loads(out.read_text())["method"] == "fast"
-    assert main(["solve", str(path), "--method", "dense", "--json", str(out), "-q"]) == 0
-    assert json.loads(out.read_text())["method"] == "dense"
+    chosen = json.loads(out.read_text())
+    assert chosen["method"] == "dense" and chosen["method_reason"].startswith("auto: estimated")
+    assert main(["solve", str(path), "--method", "fast", "--json", str(out), "-q"]) == 0
+    given = json.loads(out.read_text())
+    assert given["method"] == "fast" and given["method_reason"] == ""
 
     def interrupted(*args, **kwargs):
         raise KeyboardInterrupt
@@ -208,8 +280,11 @@ def test_gmres_applies_the_operator_once_per_iteration_and_reports_the_true_resi
 
 def test_general_system_far_field_direct_and_multipole_agree(monkeypatch):
     """The general system's far field is summed directly (each sum only where it is
-    needed) below the measured crossover and by the multipole library above it: both
-    apply the same operator, with a ground plane's images and a dielectric interface."""
+    needed) below the measured crossover; above it the first sum goes through the
+    multipole library and is timed against a direct sum over a sample of the targets,
+    and later sums take the cheaper route. Every route applies the same operator, with a
+    ground plane's images and a dielectric interface, so the timing never changes an
+    answer beyond the multipole precision."""
     from tricharge.bem.problem import problem_from_arrays
     from tricharge.bem.system import FastSystem
 
@@ -217,10 +292,22 @@ def test_general_system_far_field_direct_and_multipole_agree(monkeypatch):
     problem = problem_from_arrays(v, t, np.where(labels == 0, 0, -1), np.where(labels == 0, 4.0, 1.0),
                                   np.where(labels == 1, -3.0 / 5.0, 0.0), ground_z=0.0)
     x = np.random.default_rng(4).normal(size=(len(t), 2))
-    direct = FastSystem(problem, tol=1e-8).matmat(x)
+    below = FastSystem(problem, tol=1e-8)
+    direct = below.matmat(x)
+    assert below.far_route is None and not below.far_seconds  # nothing to choose below the crossover
     monkeypatch.setattr(fmm, "DIRECT_LIMIT", 0)
-    multipole = FastSystem(problem, tol=1e-8).matmat(x)
+    sure = FastSystem(problem, tol=1e-8)  # a direct sum this small beats the library's best case: no trial
+    assert np.abs(sure.matmat(x) - direct).max() < 1e-9 * np.abs(direct).max()
+    assert sure.far_route == "direct" and set(sure.far_seconds) == {"direct"}
+    monkeypatch.setattr(fmm, "MULTIPOLE_SECONDS_PER_POINT", (0.0, 0.0))
+    system = FastSystem(problem, tol=1e-8)
+    multipole = system.matmat(x)
     assert np.abs(direct - multipole).max() < 1e-6 * np.abs(direct).max()
+    assert set(system.far_seconds) == {"multipole", "direct"} and min(system.far_seconds.values()) > 0
+    assert system.far_route == min(system.far_seconds, key=system.far_seconds.get)
+    for route in ("direct", "multipole"):
+        system.far_route = route
+        assert np.abs(system.matmat(x) - direct).max() < 1e-6 * np.abs(direct).max(), route
 
 
 def test_pair_search_split_over_threads_finds_the_same_pairs(monkeypatch):

@@ -7,7 +7,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .bem.capacitance import solve_capacitance, solve_voltages
-from .bem.factory import memory_estimate, resolve_method
+from .bem.factory import memory_estimate, memory_method
 from .bem.fields import hot_spots, potential_and_field, surface_field
 from .bem.panels import make_panels
 from .bem.problem import Problem
@@ -132,7 +132,7 @@ def check_panel_memory(n_panels: int, method: str, what: str) -> None:
 
 
 def _check_memory_of(n: int, method: str, simple: bool, columns: int, what: str) -> None:
-    chosen = resolve_method(n, method, conductors_only=simple)
+    chosen = memory_method(n, method, conductors_only=simple)
     needed = memory_estimate(n, chosen, simple=simple, columns=columns)
     advice = ("use --method fast (memory growing linearly with the panel count)" if chosen == "dense" else
               "use a coarser mesh, fewer refinement levels or a lower --max-panels")

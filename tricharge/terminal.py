@@ -89,8 +89,9 @@ def result_report(result, *, source: str, unit: str, version: str, meshing_secon
     mesh CAD input, shown in the head line."""
     names = list(result.conductors)
     floating = f"; floating, at zero net charge: {printable(', '.join(result.floating))}" if result.floating else ""
-    how = (f"fast solve ({result.iterations} GMRES iterations, residual {result.residual:.1e})"
-           if result.method == "fast" else "dense solve")
+    why = f"; {result.method_reason}" if result.method_reason else ""
+    how = (f"fast solve ({result.iterations} GMRES iterations, residual {result.residual:.1e}{why})"
+           if result.method == "fast" else f"dense solve{f' ({result.method_reason})' if why else ''}")
     if result.study is not None:
         levels = result.study["panels_per_level"]
         how = (f"{result.study['kind']} refinement study to {levels[-1]:,} panels in {len(levels)} levels, "

@@ -52,7 +52,8 @@ def solve_capacitance(problem: Problem, *, method: str = "auto", tol: float = 1e
     Parameters
     ----------
     problem : panels and what each one is (see :class:`~tricharge.bem.system.Problem`)
-    method : "dense" (stored matrix, LU), "fast" (multipole, GMRES) or "auto" (by N)
+    method : "dense" (stored matrix, LU), "fast" (matrix-free, GMRES) or "auto" (the one
+        estimated cheaper, :mod:`.cost`)
     tol : relative residual asked of the iterative solve (fast path)
     progress : optional ``progress(stage, done, total)``; stages "near field",
         "preconditioner" and "iterations" (done = iteration, total = the cap)
@@ -69,7 +70,7 @@ def solve_capacitance(problem: Problem, *, method: str = "auto", tol: float = 1e
     if not len(driven):
         raise SolverError("every conductor is floating: at least one needs a potential to define a capacitance")
     t0 = time.perf_counter()
-    operator, preconditioner = _prepare(problem, method, tol, report)
+    operator, preconditioner = _prepare(problem, method, tol, report, columns=len(driven))
     t1 = time.perf_counter()
     n = len(panels)
     rhs = np.zeros((operator.shape[0], len(driven)))
@@ -92,15 +93,17 @@ def solve_capacitance(problem: Problem, *, method: str = "auto", tol: float = 1e
         conductors=names, capacitance=0.5 * (raw + raw.T), sigma=sigma, panel_conductor=labels,
         panel_areas=panels.areas, n_panels=n, solve_time=t2 - t0,
         checks=check_matrix(raw, list(names), accuracy=accuracy), accuracy=accuracy,
-        method=operator.method, converged=solution.converged, iterations=solution.iterations,
+        method=operator.method, method_reason=operator.choice.reason, converged=solution.converged,
+        iterations=solution.iterations,
         residual=solution.residual, timings={"assembly": t1 - t0, "solve": t2 - t1},
         reference="ground plane" if problem.ground_z is not None else "infinity",
         floating=tuple(problem.names[k] for k in problem.floating_index),
     )
 
-def _prepare(problem: Problem, method: str, tol: float, report):
+def _prepare(problem: Problem, method: str, tol: float, report, columns: int = 1):
     """The operator for ``problem`` and, on the fast path, its preconditioner (see :mod:`.factory`)."""
-    operator = make_operator(problem, method, tol=tol, progress=lambda done, total: report("near field", done, total))
+    operator = make_operator(problem, method, tol=tol, progress=lambda done, total: report("near field", done, total),
+                             columns=columns)
     preconditioner = None
     if operator.method == "fast":
         report("preconditioner", 0, 1)

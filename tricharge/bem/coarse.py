@@ -87,7 +87,7 @@ class TwoLevel(LinearOperator):
         self.radius = np.zeros(m)
         np.maximum.at(self.radius, self.cluster, spread)
         self.near_pairs = self._near_cluster_pairs()
-        self.exact = self._exact_near_columns()  # (N, m): near clusters, exactly
+        self.near = self._near_on_clusters()  # (N, m): near clusters exactly, with the near corrections
         self.lu = scipy.linalg.lu_factor(self._coarse_matrix())
         super().__init__(dtype=np.float64, shape=system.shape)
 
@@ -104,39 +104,40 @@ class TwoLevel(LinearOperator):
         keep = gap < NEAR_CLUSTERS * (self.radius[rows] + self.radius[cols])
         return sparse.csr_matrix((np.ones(int(keep.sum())), (rows[keep], cols[keep])), shape=(self.m, self.m))
 
-    def _kernel(self, targets, sources, weights):
-        """Far-rule kernel of the system's rows at ``targets`` (panel indices, (p,)) for
-        point sources (p, 3) of strength ``weights`` (p,): potential on conductor rows,
-        contrast times normal field on interface rows; images of the sources included."""
-        problem, panels = self.system.problem, self.system.panels
-        out = np.zeros(len(targets))
-        for sign, points in ((1.0, sources), (-1.0, _mirror(sources, problem.ground_z))):
-            if points is None:
-                continue
-            diff = panels.centroids[targets] - points
-            r = np.linalg.norm(diff, axis=1)
-            with np.errstate(divide="ignore", invalid="ignore"):
-                potential = np.where(r > 0, weights / r, 0.0)
-                field = np.where(r > 0, weights * np.einsum("pd,pd->p", panels.normals[targets], diff) / r**3, 0.0)
-            conductor = problem.panel_conductor[targets] >= 0
-            out += sign * np.where(conductor, potential, problem.contrast[targets] * field)
-        return out
-
     def _exact_near_columns(self):
-        """(N, m) sparse: for every panel, the exact far-rule sum over the panels of every
-        cluster near its own cluster."""
-        panels = self.system.panels
+        """(N, m) sparse: for every panel, the far-rule sum over the panels of every
+        cluster near its own cluster (images included), compiled
+        (:func:`~tricharge.bem.sums.cluster_pair_sums`)."""
+        from .sums import cluster_pair_sums
+
+        problem, panels = self.system.problem, self.system.panels
         order = np.argsort(self.cluster, kind="stable")
-        starts = np.searchsorted(self.cluster[order], np.arange(self.m + 1))
+        starts = np.searchsorted(self.cluster[order], np.arange(self.m + 1)).astype(np.int64)
         near = self.near_pairs.tocoo()
-        rows, cols, values = [], [], []
-        for i, j in zip(near.row, near.col):
-            a, b = order[starts[i] : starts[i + 1]], order[starts[j] : starts[j + 1]]
-            aa, bb = np.repeat(a, len(b)), np.tile(b, len(a))
-            rows.append(a), cols.append(np.full(len(a), j))
-            values.append(self._kernel(aa, panels.centroids[bb], panels.areas[bb]).reshape(len(a), len(b)).sum(axis=1))
-        return sparse.csr_matrix((np.concatenate(values), (np.concatenate(rows), np.concatenate(cols))),
-                                 shape=(self.n, self.m))
+        pair_i, pair_j = near.row.astype(np.int64), near.col.astype(np.int64)
+        sizes = starts[pair_i + 1] - starts[pair_i]
+        offsets = np.concatenate([[0], np.cumsum(sizes)]).astype(np.int64)
+        mirrored = problem.ground_z is not None
+        values = cluster_pair_sums(order.astype(np.int64), starts, pair_i, pair_j, offsets,
+                                   np.ascontiguousarray(panels.centroids), np.ascontiguousarray(panels.normals),
+                                   np.ascontiguousarray(panels.areas, dtype=np.float64), problem.panel_conductor >= 0,
+                                   np.ascontiguousarray(problem.contrast, dtype=np.float64),
+                                   float(problem.ground_z) if mirrored else 0.0, mirrored)
+        within = np.arange(offsets[-1]) - np.repeat(offsets[:-1], sizes)
+        rows = order[np.repeat(starts[pair_i], sizes) + within]
+        return sparse.csr_matrix((values, (rows, np.repeat(pair_j, sizes))), shape=(self.n, self.m))
+
+    def _near_on_clusters(self):
+        """(N, m) sparse: every panel row's near part for a function constant on each
+        cluster: the exact near-cluster sums plus the system's near corrections summed over
+        each cluster's columns (once here, instead of the (N, N) corrections times every
+        coarse column at each application)."""
+        system, n = self.system, self.n
+        lam = self.system.problem.contrast[system.rows_i]
+        on_c = sparse.csr_matrix((np.ones(len(system.rows_c)), (system.rows_c, np.arange(len(system.rows_c)))),
+                                 shape=(n, len(system.rows_c)))
+        on_i = sparse.csr_matrix((lam, (system.rows_i, np.arange(len(system.rows_i)))), shape=(n, len(system.rows_i)))
+        return (self._exact_near_columns() + on_c @ (system.near_c @ self.P) + on_i @ (system.near_i @ self.P)).tocsr()
 
     def _far_between_clusters(self, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Potential (m, K) and field (m, 3, K) at every cluster centre of the point charges
@@ -155,7 +156,9 @@ class TwoLevel(LinearOperator):
                 safe = np.where(r > 0, r, 1.0)
                 inv = np.where(r > 0, mask * sign * self.area[None, :] / safe, 0.0)
                 potential[rows] += inv @ y
-                field[rows] += np.einsum("ijd,ij,jk->idk", diff, inv / safe**2, y)
+                weight = inv / safe**2
+                for d in range(3):  # three matrix products (an einsum over all four indices is 30x slower)
+                    field[rows, d] += (diff[:, :, d] * weight) @ y
         return potential, field
 
     # -- the coarse operator ---------------------------------------------------------------
@@ -172,32 +175,52 @@ class TwoLevel(LinearOperator):
                                                               field[self.cluster[rows]])
         return out
 
-    def _apply_coarse(self, y: np.ndarray) -> np.ndarray:
-        """A~ applied to the coarse function (P y_panels, y_floating): (N + F, K)."""
+    def _far_restricted(self, y: np.ndarray) -> np.ndarray:
+        """(m, K): P^T :meth:`_far_on_panels`, summed per cluster without forming the panel
+        rows (clusters never mix conductor and interface rows, so each cluster's sum is its
+        panel count times the potential less its summed offsets dotted with the field, or
+        its summed contrast-weighted normals dotted with the field)."""
+        potential, field = self._far_between_clusters(y)
+        return self.sum_count[:, None] * potential + np.einsum("id,idk->ik", self.sum_vector, field)
+
+    def _cluster_sums(self) -> tuple[np.ndarray, np.ndarray]:
+        """Per cluster: the count of conductor panels (m,) and the vector (m, 3) that
+        dots with the field at its centre: minus the summed offsets of its conductor
+        panels, plus the summed contrast times normal of its interface panels."""
+        problem, panels = self.system.problem, self.system.panels
+        conductor = problem.panel_conductor >= 0
+        offset = panels.centroids - self.centre[self.cluster]
+        vector = np.where(conductor[:, None], -offset, problem.contrast[:, None] * panels.normals)
+        count = np.bincount(self.cluster, conductor.astype(np.float64), self.m)
+        return count, np.stack([np.bincount(self.cluster, vector[:, d], self.m) for d in range(3)], axis=1)
+
+    def _apply_coarse(self, y: np.ndarray, *, restricted: bool = False) -> np.ndarray:
+        """A~ applied to the coarse function (P y_panels, y_floating): (N + F, K), or with
+        ``restricted`` its restriction P^T (m + F, K) (the far part then stays per cluster)."""
         system, problem = self.system, self.system.problem
         yp, yf = y[: self.m], y[self.m :]
         s = self.P @ yp
-        out = np.zeros((self.n + len(self.floating), y.shape[1]))
-        panels_part = self._far_on_panels(yp) + self.exact @ yp
-        panels_part[system.rows_c] += system.near_c @ s
-        lam = problem.contrast[system.rows_i, None]
-        panels_part[system.rows_i] += 2.0 * np.pi * s[system.rows_i] + lam * (system.near_i @ s)
-        out[: self.n] = panels_part
+        panels_part = self.near @ yp
+        panels_part[system.rows_i] += 2.0 * np.pi * s[system.rows_i]
+        floating_part = np.zeros((len(self.floating), y.shape[1]))
         for f, k in enumerate(self.floating):
             on = problem.panel_conductor == k
-            out[: self.n][on] -= yf[f]
-            out[self.n + f] = (problem.permittivity[on] * system.panels.areas[on]) @ s[on]
-        return out
+            panels_part[on] -= yf[f]
+            floating_part[f] = (problem.permittivity[on] * system.panels.areas[on]) @ s[on]
+        if restricted:
+            return np.vstack([self.P.T @ panels_part + self._far_restricted(yp), floating_part])
+        return np.vstack([panels_part + self._far_on_panels(yp), floating_part])
 
     def _coarse_matrix(self) -> np.ndarray:
         """P^T A~ P, (m + F, m + F), column blocks of the identity through :meth:`_apply_coarse`
         restricted at once (the far part costs m^2 per column block)."""
+        self.sum_count, self.sum_vector = self._cluster_sums()
         size = self.m + len(self.floating)
         out = np.empty((size, size))
         for s in range(0, size, 256):
             columns = np.zeros((size, min(256, size - s)))
             columns[np.arange(s, s + columns.shape[1]), np.arange(columns.shape[1])] = 1.0
-            out[:, s : s + columns.shape[1]] = self._restrict(self._apply_coarse(columns))
+            out[:, s : s + columns.shape[1]] = self._apply_coarse(columns, restricted=True)
         return out
 
     def _restrict(self, v: np.ndarray) -> np.ndarray:

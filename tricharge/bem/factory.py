@@ -1,61 +1,76 @@
 """Which operator and preconditioner a problem gets, and what memory that needs.
 
-The one rule: ``auto`` stores the matrix and factorises it (``dense``) while that is
-the faster way, else applies it matrix-free (``fast``: multipole far field, sparse near
-corrections, preconditioned GMRES). Where the cross-over lies depends on the kind of
-problem, measured here on 2 cores:
-
-* conductors alone (the single-layer operator, with the sparse approximate inverse
-  preconditioner of :class:`~tricharge.bem.preconditioners.LocalInverse`): the fast path
-  is as fast as dense at 2,400 panels and 2-4x faster from 6,000; dense is kept up to
-  3,000 because one LU serves every conductor;
-* with dielectric interfaces, a ground plane or floating parts (the general system of
-  :mod:`.system`): its matrix-free form needs a wider near field and a two-level
-  preconditioner whose set-up dominates; on the 7,876-panel package demo it takes 20 s
-  (9 iterations; 16.6 s of it set-up) against 8.4 s dense (bench/package.py), so dense
-  is kept up to 12,000 panels (where a dense solve needs about 3.4 GiB).
+The one rule: ``auto`` stores the matrix and factorises it (``dense``) where that is
+estimated to be faster for the problem at hand, else applies it matrix-free (``fast``:
+far field summed directly or by multipoles, sparse near corrections, preconditioned
+GMRES); never stored when the matrix would not fit in memory. The estimates
+(:mod:`.cost`) count the near pairs the fast path would correct, so a strongly graded
+mesh (the package demo: 2,300 near pairs per conductor panel) and a uniform one of the
+same size are told apart; the reason is shown in the head line. Measured on 2 cores
+(bench/auto.py): a 3,920-panel sphere 1.3 s stored, 0.4 s matrix-free; the package demo
+(7,876 panels, dielectrics, plane, a floating part) 10.5 s stored, 5.4 s matrix-free.
 """
 
 from __future__ import annotations
 
 from ..errors import OptionError
+from .cost import Choice, choose
 from .operators import DenseSingleLayer, FastSingleLayer
 from .coarse import TwoLevel
 from .preconditioners import GeneralLocalInverse, LocalInverse
 from .problem import Problem
 from .system import FastSystem, StoredSystem
 
-#: Panel counts up to which ``auto`` stores the matrix: conductors alone, and the general system.
-AUTO_DENSE_LIMIT = 3000
-AUTO_DENSE_LIMIT_GENERAL = 12_000
-
 METHODS = ("auto", "dense", "fast")
 
 
-def resolve_method(n_panels: int, method: str, *, conductors_only: bool = True) -> str:
-    """"dense" or "fast" for a problem of ``n_panels`` panels: ``method`` itself, or the
-    rule of this module for "auto". Raises OptionError for any other method."""
+def check_method(method: str) -> None:
+    """Raise OptionError for a method other than auto, dense or fast."""
     if method not in METHODS:
         raise OptionError(f"method must be auto, dense or fast, got {method!r}")
+
+
+def memory_method(n_panels: int, method: str, *, conductors_only: bool = True) -> str:
+    """The method whose memory a solve of ``n_panels`` must have: ``method`` itself, or
+    for "auto" the one that needs less (auto never stores a matrix that does not fit)."""
+    check_method(method)
     if method != "auto":
         return method
-    limit = AUTO_DENSE_LIMIT if conductors_only else AUTO_DENSE_LIMIT_GENERAL
-    return "dense" if n_panels <= limit else "fast"
+    dense, fast = (memory_estimate(n_panels, m, simple=conductors_only) for m in ("dense", "fast"))
+    return "dense" if dense <= fast else "fast"
 
 
-def make_operator(problem: Problem, method: str = "auto", *, tol: float = 1e-6, progress=None):
+def choose_method(problem: Problem, method: str = "auto", columns: int = 1) -> Choice:
+    """How ``problem`` is solved for ``columns`` right-hand sides: ``method`` itself, or
+    for "auto" the cheaper by the estimates of :mod:`.cost`, with the reason."""
+    from ..resources import available_memory
+
+    check_method(method)
+    if method != "auto":
+        return Choice(method)
+    n = len(problem.panels)
+    available = available_memory()
+    dense_bytes = memory_estimate(n, "dense", simple=problem.conductors_only, columns=columns)
+    return choose(problem, columns, dense_fits=available is None or dense_bytes <= available)
+
+
+def make_operator(problem: Problem, method: str = "auto", *, tol: float = 1e-6, progress=None, columns: int = 1):
     """The operator of ``problem`` for ``method``: :class:`~.operators.DenseSingleLayer`,
     :class:`~.operators.FastSingleLayer`, :class:`~.system.StoredSystem` or
-    :class:`~.system.FastSystem`. ``progress(done, total)`` follows a fast near-field build."""
-    chosen = resolve_method(len(problem.panels), method, conductors_only=problem.conductors_only)
+    :class:`~.system.FastSystem`, with the :class:`~.cost.Choice` that picked it as
+    ``choice``. ``progress(done, total)`` follows a fast near-field build."""
+    choice = choose_method(problem, method, columns)
     if problem.conductors_only:
-        return DenseSingleLayer(problem.panels) if chosen == "dense" else FastSingleLayer(
+        operator = DenseSingleLayer(problem.panels) if choice.method == "dense" else FastSingleLayer(
             problem.panels, tol=tol, progress=progress)
-    if chosen == "dense":
-        return StoredSystem(problem)
-    if progress is not None:
-        progress(0, 1)
-    return FastSystem(problem, tol=tol)
+    elif choice.method == "dense":
+        operator = StoredSystem(problem)
+    else:
+        if progress is not None:
+            progress(0, 1)
+        operator = FastSystem(problem, tol=tol)
+    operator.choice = choice
+    return operator
 
 
 def make_preconditioner(operator):

@@ -4,9 +4,9 @@ Only this module imports fmm3dpy. Sums here use the kernel ``1/|x - y|`` (fmm3dp
 is ``1/(4 pi |x - y|)``), charges in any unit, and skip a source that coincides with
 the evaluation point (fmm3dpy drops the self term when evaluating at sources).
 
-Up to a measured size the sum is done directly by a compiled kernel
-(:func:`tricharge.bem.kernels.direct_sums`): exact, and cheaper there than the multipole
-library's setup and passes.
+Up to a measured size the sum is done directly by compiled kernels
+(:func:`tricharge.bem.sums.potential_sums` and ``gradient_sums``): exact, and cheaper
+there than the multipole library's setup and passes.
 """
 
 from __future__ import annotations
@@ -16,15 +16,29 @@ import numpy as np
 from ..errors import MissingDependency
 
 #: Up to this many source-target interactions the compiled direct sum is faster than the
-#: multipole library on this machine (2 cores, idle): measured by bench/farsum.py, the
-#: crossover lies at about 24,000 points summed onto themselves (5.8e8 interactions;
-#: direct 3-8x faster at 5,000 points, 1.8x at 16,000, 0.8x at 32,000), with one or five
-#: densities, with or without gradients; the direct sum is also exact.
-DIRECT_LIMIT = 5e8
+#: multipole library on this machine (2 cores, idle): measured by bench/farsum.py on random
+#: points summed onto themselves, the crossover lies at about 40,000 points with one
+#: density (1.6e9 interactions; direct 13x faster at 5,000 points, 3x at 16,000, 1.5x at
+#: 30,000, 0.7x at 60,000) and near 60,000 with five densities, with or without
+#: gradients; the direct sum is also exact. On graded meshes the library is slower than
+#: on random points, so the general system times both above this size (:mod:`.system`).
+DIRECT_LIMIT = 1.6e9
 
 #: The same for dipole sums, done directly in numpy blocks (their temporary memory grows
 #: with the source count, so they stay small).
 DIPOLE_DIRECT_LIMIT = 4e6
+
+
+#: Seconds per point of one multipole pass at its best (random points, as bench/farsum.py
+#: measures): a part per point and a part per point and density (60,000 points: 2.1 s
+#: with one density, 7.5 s with five). Graded meshes take longer, never less.
+MULTIPOLE_SECONDS_PER_POINT = (1.5e-5, 2.2e-5)
+
+
+def multipole_seconds_at_least(n_points: int, columns: int) -> float:
+    """A lower bound of the seconds one multipole pass over ``n_points`` points with
+    ``columns`` densities takes here: a direct sum predicted faster than this needs no trial."""
+    return n_points * (MULTIPOLE_SECONDS_PER_POINT[0] + MULTIPOLE_SECONDS_PER_POINT[1] * max(int(columns), 1))
 
 
 def direct_is_cheaper(n_sources: int, n_targets: int) -> bool:
@@ -89,11 +103,14 @@ def direct_sums(sources, q, points, gradient):
     """Potential (M, K) and gradient (M, K, 3) of charges ``q`` (N, K) at ``points`` by
     direct summation (compiled, over all cores; coincident points skipped); ``gradient``
     False gives None."""
-    from .kernels import direct_sums as compiled
+    from .sums import gradient_sums, potential_sums
 
-    phi, grad = compiled(np.ascontiguousarray(sources, dtype=np.float64), np.ascontiguousarray(q, dtype=np.float64),
-                         np.ascontiguousarray(points, dtype=np.float64), bool(gradient))
-    return phi, (grad if gradient else None)
+    sx, sy, sz = (np.ascontiguousarray(np.asarray(sources, dtype=np.float64)[:, d]) for d in range(3))
+    qT = np.ascontiguousarray(np.asarray(q, dtype=np.float64).T)
+    points = np.ascontiguousarray(points, dtype=np.float64)
+    if gradient:
+        return gradient_sums(sx, sy, sz, qT, points)
+    return potential_sums(sx, sy, sz, qT, points), None
 
 
 def multipole_sums(sources, q, targets, precision, gradient):

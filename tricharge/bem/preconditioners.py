@@ -134,9 +134,20 @@ def _system_entries(system, a: np.ndarray, b: np.ndarray, position: np.ndarray) 
     out = np.empty(len(a))
     on_conductor = position[0, a] >= 0
     rows_c, rows_i = position[0, a[on_conductor]], position[1, a[~on_conductor]]
-    out[on_conductor] = potential[on_conductor] + np.asarray(system.near_c[rows_c, b[on_conductor]]).ravel()
+    out[on_conductor] = potential[on_conductor] + _entries(system.near_c, rows_c, b[on_conductor])
     contrast = problem.contrast[a[~on_conductor]]
-    near = np.asarray(system.near_i[rows_i, b[~on_conductor]]).ravel()
+    near = _entries(system.near_i, rows_i, b[~on_conductor])
     out[~on_conductor] = (contrast * (normal_field[~on_conductor] + near)
                           + 2.0 * np.pi * (a[~on_conductor] == b[~on_conductor]))
     return out
+
+
+def _entries(matrix, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
+    """``matrix[rows, cols]`` of a CSR matrix as a flat array, by binary search in each row
+    (scipy scans whole rows when the samples are few against the stored entries: 1 s of
+    the package demo's set-up, where a row holds about 2,300 near entries)."""
+    from .kernels import csr_entries
+
+    if not matrix.has_sorted_indices:
+        matrix.sort_indices()
+    return csr_entries(matrix.indptr, matrix.indices, matrix.data, rows.astype(np.int64), cols.astype(np.int64))

@@ -166,6 +166,7 @@ class Result:
         refinement study (:mod:`~tricharge.bem.convergence`), or None without one
     study : the study's levels, orders and status per entry (plain data), or None
     method : operator used ("dense" or "fast")
+    method_reason : why "auto" chose it (estimated seconds of each way), or ""
     converged, iterations, residual : from the linear solve
     accuracy : relative accuracy of the method's matrix entries (:data:`SOLVER_ACCURACY`)
     """
@@ -188,6 +189,7 @@ class Result:
     error_estimate: np.ndarray | None = None
     study: dict | None = None
     accuracy: float = SOLVER_ACCURACY["dense"]
+    method_reason: str = ""
 
     @property
     def tolerance(self) -> np.ndarray:
@@ -272,6 +274,7 @@ class Result:
             "floating_conductors": list(self.floating),
             "panels": int(self.n_panels),
             "method": self.method,
+            "method_reason": self.method_reason,
             "converged": self.converged,
             "iterations": self.iterations,
             "residual": self.residual,

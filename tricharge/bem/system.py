@@ -21,6 +21,8 @@ metre) on every panel, plus the unknown potential of each floating conductor. Ro
 
 from __future__ import annotations
 
+import time
+
 import numpy as np
 from scipy.sparse.linalg import LinearOperator
 from scipy.spatial.distance import cdist
@@ -30,6 +32,9 @@ from .nearfield import (DENSE_POLICY, GENERAL_FAST_POLICY, NearFieldPolicy, near
 from .operators import StoredOperator, assemble_single_layer
 from .panels import Panels
 from .problem import Problem
+
+#: The direct far sum is timed on every SAMPLE_EVERY-th target to predict its cost.
+SAMPLE_EVERY = 40
 
 
 def assemble_normal_field(targets: np.ndarray, normals: np.ndarray, panels: Panels,
@@ -163,6 +168,9 @@ class FastSystem(LinearOperator):
             self.near_c = self.near_c - near_correction_rows(c[self.rows_c], problem.images, self.policy, "potential")
             self.near_i = self.near_i - near_correction_rows(c[self.rows_i], problem.images, self.policy, "field", normals)
         self.n, self.floating = n, problem.floating_index
+        #: how far sums above the crossover are done ("multipole" or "direct"), chosen by
+        #: timing both at the first one (None until then); far_seconds: those timings
+        self.far_route, self.far_seconds = None, {}
         size = n + len(self.floating)
         super().__init__(dtype=np.float64, shape=(size, size))
 
@@ -174,19 +182,56 @@ class FastSystem(LinearOperator):
     def _far_sums(self, points, charges, need_grad: bool):
         """The far field of every panel charge (and image): the potential at the conductor
         centroids (Kc, K) and the gradient at the interface centroids (Ki, K, 3), or None.
-        Summed directly, each only where it is needed; by the multipole library, in one
-        pass at every source (it drops only a source's own term)."""
-        from .fmm import direct_is_cheaper, potentials
+
+        Summed directly (exact, each only where it is needed) below the multipole
+        library's measured crossover (:func:`~tricharge.bem.fmm.direct_is_cheaper`).
+        Above it, at the first sum, the direct sum is timed on a sample of the targets;
+        when that predicts less than the library's best case
+        (:func:`~tricharge.bem.fmm.multipole_seconds_at_least`) every sum is direct,
+        else the first goes through the library (one pass at every source, images
+        included) and is timed too, and the cheaper does the rest (``far_route``). The
+        library's cost grows with the number of right-hand sides and with the grading of
+        the mesh far more than the direct sum's: on the package demo's first refinement
+        (31,504 panels, five conductors) one multipole pass took 20 s, the direct sum 5.6 s.
+        """
+        from .fmm import direct_is_cheaper, multipole_seconds_at_least, potentials
+
+        if self.far_route == "direct" or direct_is_cheaper(len(points), len(self.panels)):
+            return self._direct_far(points, charges, need_grad)
+        if self.far_route is None:
+            self.far_seconds = {"direct": self._time_direct(points, charges, need_grad)}
+            if self.far_seconds["direct"] <= multipole_seconds_at_least(len(points), charges.shape[1]):
+                self.far_route = "direct"
+                return self._direct_far(points, charges, need_grad)
+        start = time.perf_counter()
+        if not need_grad:
+            phi, grad = potentials(points, charges, precision=self.precision), None
+        else:
+            phi, grad = potentials(points, charges, precision=self.precision, gradient=True)
+        if self.far_route is None:
+            self.far_seconds["multipole"] = time.perf_counter() - start
+            self.far_route = min(self.far_seconds, key=self.far_seconds.get)
+        return phi[self.rows_c], (grad[self.rows_i] if need_grad else None)
+
+    def _direct_far(self, points, charges, need_grad: bool, rows_c=None, rows_i=None):
+        """The far sums of :meth:`_far_sums` by direct summation, at ``rows_c`` and
+        ``rows_i`` (default: every conductor and interface row)."""
+        from .fmm import direct_sums
 
         c = self.panels.centroids
-        if direct_is_cheaper(len(points), len(c)):
-            phi_c = potentials(points, charges, c[self.rows_c])
-            grad_i = potentials(points, charges, c[self.rows_i], gradient=True)[1] if need_grad else None
-            return phi_c, grad_i
-        if not need_grad:
-            return potentials(points, charges, precision=self.precision)[self.rows_c], None
-        phi, grad = potentials(points, charges, precision=self.precision, gradient=True)
-        return phi[self.rows_c], grad[self.rows_i]
+        rows_c = self.rows_c if rows_c is None else rows_c
+        rows_i = self.rows_i if rows_i is None else rows_i
+        phi_c = direct_sums(points, charges, c[rows_c], False)[0]
+        grad_i = direct_sums(points, charges, c[rows_i], True)[1] if need_grad else None
+        return phi_c, grad_i
+
+    def _time_direct(self, points, charges, need_grad: bool) -> float:
+        """Seconds a direct far sum at every target would take, from one over every
+        SAMPLE_EVERY-th target (its cost is proportional to the targets)."""
+        start = time.perf_counter()
+        self._direct_far(points, charges, need_grad, self.rows_c[::SAMPLE_EVERY], self.rows_i[::SAMPLE_EVERY])
+        sampled = len(self.rows_c[::SAMPLE_EVERY]) + len(self.rows_i[::SAMPLE_EVERY])
+        return (time.perf_counter() - start) * self.n / max(sampled, 1)
 
     def _matmat(self, x):
 

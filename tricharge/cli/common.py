@@ -84,9 +84,9 @@ volts_option = click.option("--volts", "volts", multiple=True, metavar="NAME=VAL
                              help="Voltage of a conductor, e.g. hv=50kV (repeatable); overrides the model file.")
 method_option = click.option("--method", type=click.Choice(["auto", "dense", "fast"]), default="auto",
                               show_default=True,
-                              help="dense: stored matrix and LU (small models); fast: multipole and GMRES, memory "
-                                   "growing linearly; auto: dense up to 3,000 panels (12,000 with dielectrics, a "
-                                   "plane or floating parts).")
+                              help="dense: stored matrix and LU (small models); fast: matrix-free and GMRES, memory "
+                                   "growing linearly; auto: the one estimated cheaper for this model (dense also "
+                                   "when under 2 s), said in the head line.")
 tol_option = click.option("--tol", type=click.FloatRange(1e-12, 1e-2), default=1e-6, show_default=True,
                            help="Relative residual of the iterative (fast) solve.")
 cautions_option = click.option(
