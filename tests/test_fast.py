@@ -296,7 +296,8 @@ def test_general_system_far_field_direct_and_multipole_agree(monkeypatch):
     direct = below.matmat(x)
     assert below.far_route is None and not below.far_seconds  # nothing to choose below the crossover
     monkeypatch.setattr(fmm, "DIRECT_LIMIT", 0)
-    sure = FastSystem(problem, tol=1e-8)  # a direct sum this small beats the library's best case: no trial
+    monkeypatch.setattr(fmm, "MULTIPOLE_SECONDS_PER_POINT", (1.0, 1.0))  # a best case no direct sum here misses
+    sure = FastSystem(problem, tol=1e-8)  # the sampled direct sum beats the library's best case: no trial
     assert np.abs(sure.matmat(x) - direct).max() < 1e-9 * np.abs(direct).max()
     assert sure.far_route == "direct" and set(sure.far_seconds) == {"direct"}
     monkeypatch.setattr(fmm, "MULTIPOLE_SECONDS_PER_POINT", (0.0, 0.0))

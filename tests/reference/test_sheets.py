@@ -81,7 +81,10 @@ def test_a_sheet_in_an_interface_tends_to_the_mean_permittivity():
     assert limit == pytest.approx(2.5, rel=0.05), (ratio, limit)
 
 
+@pytest.mark.smoke
 def test_fast_and_dense_agree_on_a_sheet_in_an_interface():
+    """Also the smoke test of the general system's compiled kernels (grid pair search,
+    normal-field near integrals, coarse near-cluster sums, sparse sampling) at the floors."""
     model = disk_in_block(4.0)
     dense = solve(model, method="dense").capacitance[0, 0]
     fast = solve(model, method="fast", tol=1e-8).capacitance[0, 0]

@@ -80,8 +80,7 @@ def near_pairs(targets: np.ndarray, panels: Panels, within: float) -> tuple[np.n
     rel : (p,) float64 distance target-to-centroid divided by the panel's size
     """
     i, j, distance = pairs_in_grid(targets, panels.centroids, within * panels.sizes)
-    rel = distance / panels.sizes[j]
-    return i, j, rel
+    return i, j, np.divide(distance, panels.sizes[j], out=distance)
 
 
 #: Cubes per axis beyond which a group's grid would be too fine to number (a few
@@ -91,11 +90,12 @@ GRID_LIMIT = 2**20
 
 def pairs_in_grid(targets, centers, radii) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """All (target i, center j) with ``|targets[i] - centers[j]| < radii[j]``, as
-    :func:`tricharge.mesh.pairs_within` (the same pairs, grouped by target): centers are
-    grouped by radius in powers of two, each group binned in cubes as large as its
-    largest radius, and every target visits the 27 cubes around it in a compiled
-    search over both cores (:func:`~tricharge.bem.kernels.grid_pairs`; on the package
-    demo's 15 million near pairs about 5x faster than the k-d trees).
+    :func:`tricharge.mesh.pairs_within` (the same pairs), sorted by target, so that they
+    form the rows of a CSR matrix as they come: centers are grouped by radius in powers
+    of two, each group binned in cubes as large as its largest radius, and every target
+    visits the 27 cubes around it in a compiled search over both cores
+    (:func:`~tricharge.bem.kernels.grid_pairs`; on the package demo's 15 million near
+    pairs about 5x faster than the k-d trees): one pass counts, one writes in place.
 
     targets (M, 3), centers (N, 3) metres, radii (N,) > 0; returns i (p,) int64,
     j (p,) int64, distance (p,) float64 metres."""
@@ -107,7 +107,7 @@ def pairs_in_grid(targets, centers, radii) -> tuple[np.ndarray, np.ndarray, np.n
     if not len(targets) or not len(centers):
         return np.zeros(0, np.int64), np.zeros(0, np.int64), np.zeros(0)
     size_class = np.floor(np.log2(radii / radii.min())).astype(np.int64)
-    grids, trees = [], []
+    groups = []  # ("grid", its arguments, count per target) or ("tree", its pairs, count per target)
     for c in np.unique(size_class):
         group = np.flatnonzero(size_class == c)
         cell = float(radii[group].max())
@@ -115,7 +115,8 @@ def pairs_in_grid(targets, centers, radii) -> tuple[np.ndarray, np.ndarray, np.n
         shape = np.floor((centers[group].max(axis=0) - origin) / cell).astype(np.int64) + 1
         if shape.max() > GRID_LIMIT:
             i, j, distance = pairs_within(targets, centers[group], radii[group])
-            trees.append((i, group[j], distance))
+            order = np.argsort(i, kind="stable")
+            groups.append(("tree", (i[order], group[j[order]], distance[order]), np.bincount(i, minlength=len(targets))))
             continue
         cube = np.floor((centers[group] - origin) / cell).astype(np.int64)
         number = cube[:, 0] + shape[0] * (cube[:, 1] + shape[1] * cube[:, 2])
@@ -124,19 +125,20 @@ def pairs_in_grid(targets, centers, radii) -> tuple[np.ndarray, np.ndarray, np.n
         arguments = (targets, centers, radii, group[order].astype(np.int64), keys,
                      np.append(first, len(group)).astype(np.int64), origin, cell, shape)
         none = np.zeros(0, np.int64), np.zeros(0, np.int64), np.zeros(0)
-        grids.append((arguments, grid_pairs(*arguments, np.zeros(1, np.int64), *none, False)))
-    total = sum(int(counts.sum()) for _, counts in grids) + sum(len(found[0]) for found in trees)
-    out = np.empty(total, np.int64), np.empty(total, np.int64), np.empty(total)
-    at = 0
-    for arguments, counts in grids:  # each group's pairs written in place, in target order
-        offsets = np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
-        end = at + int(offsets[-1])
-        grid_pairs(*arguments, offsets, out[0][at:end], out[1][at:end], out[2][at:end], True)
-        at = end
-    for found in trees:
-        for k in range(3):
-            out[k][at : at + len(found[0])] = found[k]
-        at += len(found[0])
+        groups.append(("grid", arguments, grid_pairs(*arguments, np.zeros(1, np.int64), *none, False)))
+    per_target = sum(counts for _, _, counts in groups)
+    start = np.concatenate([[0], np.cumsum(per_target)]).astype(np.int64)
+    out = np.empty(start[-1], np.int64), np.empty(start[-1], np.int64), np.empty(start[-1])
+    at = start[:-1].copy()  # where each target's pairs of the next group go
+    for how, work, counts in groups:
+        if how == "tree":  # its pairs, sorted by target
+            i = work[0]
+            rank = np.arange(len(i)) - np.repeat(np.concatenate([[0], np.cumsum(counts)[:-1]]), counts)
+            for k in range(3):
+                out[k][at[i] + rank] = work[k]
+        else:
+            grid_pairs(*work, at, *out, True)
+        at += counts
     return out
 
 def kernel_arrays(panels: Panels, policy: NearFieldPolicy) -> tuple:
@@ -251,10 +253,14 @@ def near_correction_rows(targets, panels: Panels, policy: NearFieldPolicy, kind:
     from .kernels import near_normal_field_values, near_values
 
     targets = np.ascontiguousarray(targets, dtype=np.float64)
-    i, j, rel = near_pairs(targets, panels, policy.corrected_within)
+    i, j, rel = near_pairs(targets, panels, policy.corrected_within)  # sorted by target: CSR rows as they come
     if kind == "field":
         values = near_normal_field_values(targets, np.ascontiguousarray(normals, dtype=np.float64), i, j, rel,
                                           *kernel_arrays(panels, policy), True)
     else:
         values = near_values(targets, i, j, rel, *kernel_arrays(panels, policy), True)
-    return sparse.csr_matrix((values, (i, j)), shape=(len(targets), len(panels)))
+    del rel
+    indptr = np.concatenate([[0], np.cumsum(np.bincount(i, minlength=len(targets)))])
+    del i
+    index = np.int32 if max(len(values), len(panels)) < 2**31 else np.int64
+    return sparse.csr_matrix((values, j.astype(index), indptr.astype(index)), shape=(len(targets), len(panels)))
