@@ -21,8 +21,6 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
-import numpy as np
-
 #: Seconds per stored matrix entry assembled (near entries integrated accurately), by
 #: kind of problem (conductors alone: the single layer; else the general system).
 ASSEMBLY_SECONDS = {True: 6.0e-8, False: 1.2e-7}
@@ -91,10 +89,10 @@ def estimate_seconds(problem, columns: int) -> dict:
 def choose(problem, columns: int, *, dense_fits: bool = True) -> Choice:
     """The cheaper way to solve ``problem`` for ``columns`` right-hand sides, with the
     reason in words; matrix-free when the stored matrix would not fit in memory."""
+    if not dense_fits:  # nothing to estimate (and large models skip the pair count)
+        return Choice("fast", "auto: the stored matrix would not fit in memory")
     seconds = estimate_seconds(problem, columns)
     shown = f"estimated {_seconds(seconds['dense'])} stored against {_seconds(seconds['fast'])} matrix-free"
-    if not dense_fits:
-        return Choice("fast", "auto: the stored matrix would not fit in memory", seconds)
     if seconds["dense"] <= seconds["fast"]:
         return Choice("dense", f"auto: {shown}", seconds)
     if seconds["dense"] <= AFFORDABLE_SECONDS:
