@@ -362,3 +362,49 @@ def test_a_study_after_gmsh_was_closed_imports_the_cad_again(tmp_path):
     gmsh.finalize()
     result = solve(model, levels=3)
     assert abs(result.capacitance[0, 0] / (FOUR_PI_EPS0 * 1e-3) - 1) < 2e-4
+
+
+def test_the_declared_unit_can_be_replaced(tmp_path, capsys):
+    """A STEP file declares millimetres; --cad-unit in (or cad_unit in the model file's
+    [meshing]) says its numbers are inches: every length 25.4x, so the sphere's
+    capacitance (4 pi eps0 R, proportional to R) too. A file whose declared unit cannot
+    be read refuses the replacement in one line."""
+    from tricharge.io.cadunits import declared_metres
+
+    step = write_step(tmp_path / "ball.step", lambda occ: occ.addSphere(0, 0, 0, 1.0), ["ball"])
+    assert declared_metres(step) == 1e-3
+    values = []
+    for extra in ([], ["--cad-unit", "in"]):
+        out = tmp_path / f"c{len(extra)}.json"
+        assert main(["solve", str(step), "--panel-size", "0.5mm" if not extra else "12.7mm", "--json", str(out),
+                     "-q", *extra]) == 0
+        values.append(json.loads(out.read_text())["capacitance_matrix"][0][0])
+    assert values[1] / values[0] == pytest.approx(25.4, rel=1e-9)
+    model = tmp_path / "m.toml"
+    model.write_text('mesh = "ball.step"\nunit = "mm"\n[meshing]\npanel_size = 12.7\ncad_unit = "in"\n')
+    assert main(["solve", str(model), "--json", str(tmp_path / "m.json"), "-q"]) == 0
+    assert json.loads((tmp_path / "m.json").read_text())["capacitance_matrix"][0][0] == pytest.approx(values[1])
+    model.write_text('mesh = "ball.step"\nunit = "mm"\n[meshing]\ncad_unit = "furlong"\n')
+    assert main(["solve", str(model)]) == 2
+    assert "'meshing.cad_unit' is furlong; give one of m, cm, mm, um, in, mil" in capsys.readouterr().err
+    odd = tmp_path / "odd.step"
+    odd.write_text(step.read_text().replace("SI_UNIT(.MILLI.,.METRE.)", "SI_UNIT(.FOO.,.METRE.)"))
+    assert main(["solve", str(odd), "--cad-unit", "in"]) == 2
+    err = capsys.readouterr().err.strip()
+    assert "cannot read the length unit the file declares" in err and len(err.splitlines()) == 1, err
+
+
+@pytest.mark.parametrize("glob, metres", [
+    (",,4Hpart,8Hpart.igs,2Hgs,2Hgs,32,308,15,308,15,4Hpart,1.,1,2HIN,1,0.01,13H260101.000000,1E-07,1.,,,11,0;", 0.0254),
+    ("1H,,1H;,4Ha,b,8Hpart.igs,2Hgs,2Hgs,32,308,15,308,15,4Hpart,1.,6,1HM,1,0.01,13H260101.000000,1E-07;", 1.0),
+    (",,4Hpart,8Hpart.igs,2Hgs,2Hgs,32,308,15,308,15,4Hpart,1.,3,4HFOOT,1,0.01;", 0.3048),
+])
+def test_an_iges_global_section_says_its_unit(tmp_path, glob, metres):
+    """IGES 5.3 global section: parameter 14 is the units flag (1 inch, 6 metre, 3 named
+    by parameter 15); Hollerith strings may hold the delimiter ("4Ha,b")."""
+    from tricharge.io.cadunits import declared_metres
+
+    lines = [glob[k : k + 72].ljust(72) + f"G{n + 1:7d}" for n, k in enumerate(range(0, len(glob), 72))]
+    path = tmp_path / "part.igs"
+    path.write_text("\n".join(lines) + "\n")
+    assert declared_metres(path) == pytest.approx(metres)

@@ -142,6 +142,9 @@ def cad_options(command):
                help="CAD input: at least N panels across every gap between two parts (0: off) [default: 3]."),
         option("--edge-grading", "edge_grading", type=click.FloatRange(0.01, 1.0), metavar="F",
                help="CAD input: panels on sharp edges F times the panel size (1: off) [default: 0.3]."),
+        option("--cad-unit", "cad_unit", type=click.Choice(list(LENGTH_UNITS)),
+               help="CAD input: the unit the file's numbers are really in, replacing the one a STEP or IGES "
+                    "file declares (for BREP, as --unit)."),
         option("--mesh-out", "mesh_out", type=click.Path(dir_okay=False, path_type=Path),
                help="CAD input: also write the mesh made from it (.msh, names as physical groups)."),
     ]
@@ -159,7 +162,7 @@ def cad_meshing(settings: dict | None, unit: str | None, progress=None):
     if size is not None:
         size = parse_length(size, unit or "m", "--panel-size")
     return Meshing(size, settings.get("per_radian"), settings.get("across_gaps"), settings.get("edge_grading"),
-                   progress=progress, unit=unit)
+                   progress=progress, unit=unit, cad_unit=settings.get("cad_unit"))
 
 
 def _plan_mesh_out(plan, model, settings) -> None:

@@ -20,7 +20,9 @@ share form a surface of their own, ``a@b``:
 
 Units. STEP and IGES carry their length unit and are read in metres whatever ``--unit``
 says (it then only sets the unit things are shown in); BREP files carry none, so
-``--unit`` says what their numbers are in, as for meshes.
+``--unit`` says what their numbers are in, as for meshes. ``--cad-unit`` (``cad_unit``
+in a model file's ``[meshing]``) says what a file's numbers really are in, replacing
+the unit a STEP or IGES file declares (:mod:`.cadunits` reads it).
 
 The CAD model stays open after reading: refinement studies move every new vertex onto
 the CAD surface (:mod:`tricharge.io.cadproject`), so an error estimate covers the
@@ -40,6 +42,7 @@ from ..errors import MeshError
 from .cadmesh import Meshing, set_sizes
 from .cadproject import CadFaces
 from .cadsession import CARRIED_SCALE, UNIT_CARRYING, gmsh_session, import_solids, quiet_output, why
+from .cadunits import declared_metres
 from .rawsurface import RawSurface
 
 CAD_ENDINGS = (".step", ".stp", ".iges", ".igs", ".brep")
@@ -130,7 +133,9 @@ def read_cad(path: Path) -> RawSurface:
     model = f"tricharge-{next(_models)}-{path.name}"
     gmsh.model.add(model)
     carried = path.suffix.lower() in UNIT_CARRYING
-    scale = CARRIED_SCALE if carried else metres_per(settings.unit or "m")
+    scale = CARRIED_SCALE if carried else metres_per(settings.cad_unit or settings.unit or "m")
+    if carried and settings.cad_unit:  # the numbers are really in cad_unit, whatever the file declares
+        scale *= metres_per(settings.cad_unit) / declared_metres(path)
     try:
         names, sources = import_solids(gmsh, path)
         owner = owners(gmsh, path, names, sources, settings.bodies, scale)

@@ -46,7 +46,8 @@ class Meshing:
     ``bodies`` are the names of solids that are dielectric bodies (named by a model
     file's interfaces): where a conductor touches one, the contact faces belong to the
     conductor. ``progress(stage, done, total)`` is told how meshing goes; ``unit`` is
-    the unit of files that carry none (BREP)."""
+    the unit of files that carry none (BREP); ``cad_unit`` the unit a file's numbers are
+    really in, replacing the one a STEP or IGES file declares (and ``unit`` for BREP)."""
 
     panel_size: float | None = None
     per_radian: float | None = None
@@ -55,6 +56,7 @@ class Meshing:
     bodies: frozenset = frozenset()
     progress: object = None
     unit: str | None = None
+    cad_unit: str | None = None
 
     def over(self, other: "Meshing") -> "Meshing":
         """These settings where given, ``other``'s elsewhere (the command line over the file)."""
@@ -99,6 +101,11 @@ def from_table(table: dict, unit: str, where: str) -> Meshing:
     for key, value in table.items():
         if key == "panel_size":
             settings[key] = parse_length(value, unit, f"{where}{key}'")
+            continue
+        if key == "cad_unit":
+            if not isinstance(value, str) or value not in LENGTH_UNITS:
+                raise OptionError(f"{where}{key}' is {printable(value)}; give one of {', '.join(LENGTH_UNITS)}")
+            settings[key] = value
             continue
         low, high, what = LIMITS[key]
         if isinstance(value, bool) or not isinstance(value, (int, float)) or not low <= value <= high:

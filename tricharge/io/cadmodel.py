@@ -21,7 +21,7 @@ from ..model import Conductor, Interface
 from .cad import meshing
 from .cadmesh import Meshing, from_table
 
-MESHING_KEYS = ("panel_size", "per_radian", "across_gaps", "edge_grading")
+MESHING_KEYS = ("panel_size", "per_radian", "across_gaps", "edge_grading", "cad_unit")
 
 
 @contextlib.contextmanager

@@ -29,6 +29,7 @@ Example (every key is optional except ``mesh``)::
     per_radian = 2                # panels per radian where surfaces curve
     across_gaps = 3               # at least this many panels across gaps between parts
     edge_grading = 0.3            # panels on sharp edges, a fraction of panel_size (1: off)
+    cad_unit = "in"               # the unit the CAD numbers are really in (replaces the declared one)
 
 Without a ``[conductors]`` table every surface that is not part of an interface is a
 conductor of the same name. Surfaces are named by the mesh: Gmsh physical group names
