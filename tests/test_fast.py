@@ -53,6 +53,12 @@ def test_direct_and_multipole_sums_agree():
         multipole, multipole_grad = fmm.multipole_sums(sources, charges, points, 1e-6, True)
         assert np.abs(direct - multipole).max() < 1e-6 * np.abs(direct).max()
         assert np.abs(direct_grad - multipole_grad).max() < 1e-6 * np.abs(direct_grad).max()
+    # targets sitting on sources (the general system asks at the panels, not their
+    # images): the library skips the coincident source as when evaluating at the sources
+    at_sources, at_sources_grad = fmm.multipole_sums(sources, charges, None, 1e-6, True)
+    on, on_grad = fmm.multipole_sums(sources, charges, sources[:1000], 1e-6, True)
+    assert np.all(np.isfinite(on)) and np.abs(on - at_sources[:1000]).max() < 1e-6 * np.abs(on).max()
+    assert np.abs(on_grad - at_sources_grad[:1000]).max() < 1e-6 * np.abs(on_grad).max()
 
 
 def test_dipole_sums_agree_direct_and_multipole(monkeypatch):

@@ -1,6 +1,7 @@
 """Compiled sums of point charges: the direct far-field sums (below the size where the
-multipole library becomes cheaper, see :mod:`.fmm`) and the sums between near clusters of
-the general system's coarse level (:mod:`.coarse`)."""
+multipole library becomes cheaper, see :mod:`.fmm`) and the sums of the general system's
+coarse level (:mod:`.coarse`): panel by panel between near clusters, centre to centre
+between the rest."""
 
 from __future__ import annotations
 
@@ -141,4 +142,73 @@ def cluster_pair_sums(members, starts, pair_i, pair_j, offsets, centroids, norma
                     else:
                         acc += sign * areas[b] * (n0 * d0 + n1 * d1 + n2 * d2) * inv * inv * inv
             out[offsets[p] + t] = acc if conductor else contrast[a] * acc
+    return out
+
+
+@compiled(parallel=True, fastmath=False)
+def cluster_far_sums(centre, area, near_indptr, near_indices, y, mirror_z, mirrored):
+    """Potential (m, K) and field (m, 3, K) at every cluster centre of the point charges
+    ``area[j] * y[j]`` at the other centres, leaving out the near pairs (row i's near
+    clusters are ``near_indices[near_indptr[i]:near_indptr[i + 1]]``); when ``mirrored``
+    each centre's image at ``z -> 2 mirror_z - z`` adds the same with the opposite sign
+    (and is left out with its cluster). The "field" is sum ``area y (x_i - x_j) / r^3``.
+
+    centre (m, 3); area (m,); near_indptr (m + 1,), near_indices int; y (m, K).
+    """
+    m, k = centre.shape[0], y.shape[1]
+    potential, field = np.zeros((m, k)), np.zeros((m, 3, k))
+    for i in prange(m):
+        far = np.ones(m, dtype=np.bool_)
+        for p in range(near_indptr[i], near_indptr[i + 1]):
+            far[near_indices[p]] = False
+        for j in range(m):
+            if not far[j]:
+                continue
+            for image in range(2 if mirrored else 1):
+                sign = 1.0 if image == 0 else -1.0
+                z = centre[j, 2] if image == 0 else 2.0 * mirror_z - centre[j, 2]
+                d0, d1, d2 = centre[i, 0] - centre[j, 0], centre[i, 1] - centre[j, 1], centre[i, 2] - z
+                r2 = d0 * d0 + d1 * d1 + d2 * d2
+                if r2 == 0.0:
+                    continue
+                inv = sign * area[j] / math.sqrt(r2)
+                w = inv / r2
+                for c in range(k):
+                    potential[i, c] += inv * y[j, c]
+                    field[i, 0, c] += w * d0 * y[j, c]
+                    field[i, 1, c] += w * d1 * y[j, c]
+                    field[i, 2, c] += w * d2 * y[j, c]
+    return potential, field
+
+
+@compiled(parallel=True, fastmath=False)
+def cluster_far_matrix(centre, area, near_indptr, near_indices, count, vector, mirror_z, mirrored):
+    """The (m, m) matrix of the sums of :func:`cluster_far_sums` restricted to clusters:
+    ``F[i, j] = sum over j and its image of area_j / r (count[i] + vector[i] . (x_i - x_j) / r^2)``
+    (signed for the image, near pairs left out): ``F @ y`` equals
+    ``count[:, None] * potential + einsum("id,idk->ik", vector, field)`` of that function,
+    formed once in O(m^2) instead of applying it to every column of the identity.
+
+    count (m,), vector (m, 3); the rest as :func:`cluster_far_sums`.
+    """
+    m = centre.shape[0]
+    out = np.zeros((m, m))
+    for i in prange(m):
+        far = np.ones(m, dtype=np.bool_)
+        for p in range(near_indptr[i], near_indptr[i + 1]):
+            far[near_indices[p]] = False
+        for j in range(m):
+            if not far[j]:
+                continue
+            acc = 0.0
+            for image in range(2 if mirrored else 1):
+                sign = 1.0 if image == 0 else -1.0
+                z = centre[j, 2] if image == 0 else 2.0 * mirror_z - centre[j, 2]
+                d0, d1, d2 = centre[i, 0] - centre[j, 0], centre[i, 1] - centre[j, 1], centre[i, 2] - z
+                r2 = d0 * d0 + d1 * d1 + d2 * d2
+                if r2 == 0.0:
+                    continue
+                inv = sign * area[j] / math.sqrt(r2)
+                acc += inv * (count[i] + (vector[i, 0] * d0 + vector[i, 1] * d1 + vector[i, 2] * d2) / r2)
+            out[i, j] = acc
     return out
