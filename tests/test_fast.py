@@ -333,3 +333,36 @@ def test_pair_search_split_over_threads_finds_the_same_pairs(monkeypatch):
     for a, b in zip(one, split):
         np.testing.assert_array_equal(a[order_one], b[order_split])
     assert len(one[0]) > len(panels)
+
+
+def test_compiled_sparse_product_equals_scipys():
+    """The near corrections and local inverses are applied by a compiled CSR product over
+    all cores; it must give scipy's product, for one column and several."""
+    from scipy import sparse
+
+    from tricharge.bem.sums import csr_times
+
+    matrix = sparse.random(300, 200, density=0.05, format="csr", random_state=3)
+    x = np.random.default_rng(5).normal(size=(200, 4))
+    np.testing.assert_allclose(csr_times(matrix, x), matrix @ x, rtol=1e-12, atol=1e-14)
+    np.testing.assert_allclose(csr_times(matrix, x[:, 1]), matrix @ x[:, 1], rtol=1e-12, atol=1e-14)
+    wide = matrix.copy()
+    wide.indices, wide.indptr = wide.indices.astype(np.int64), wide.indptr.astype(np.int64)
+    np.testing.assert_allclose(csr_times(wide, x), matrix @ x, rtol=1e-12, atol=1e-14)
+    np.testing.assert_allclose(csr_times(matrix.tocoo(), x), matrix @ x, rtol=1e-12, atol=1e-14)
+
+
+def test_the_coarse_solve_on_one_thread_equals_lapacks():
+    """The coarse level's LU solve is compiled on one thread (LAPACK's spinning threads
+    slowed the far sums after it); it must give LAPACK's answer, pivoting included."""
+    import scipy.linalg
+
+    from tricharge.bem.coarse import lu_solve_serial
+
+    rng = np.random.default_rng(7)
+    matrix = rng.normal(size=(120, 120))
+    matrix[:, 0] *= 1e-3  # pivoting matters
+    b = rng.normal(size=(120, 3))
+    factors = scipy.linalg.lu_factor(matrix)
+    np.testing.assert_allclose(lu_solve_serial(*factors, b), scipy.linalg.lu_solve(factors, b), rtol=1e-9, atol=1e-12)
+    np.testing.assert_allclose(matrix @ lu_solve_serial(*factors, b), b, atol=1e-9)

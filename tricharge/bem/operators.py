@@ -19,6 +19,7 @@ from scipy.spatial.distance import cdist
 
 from .nearfield import DENSE_POLICY, FAST_POLICY, NearFieldPolicy, near_corrections, near_pairs, pair_integrals
 from .panels import Panels
+from .sums import csr_times
 
 #: Columns assembled per block in the dense fill (bounds the temporary to ~8 MB per 1k rows).
 _COLUMN_BLOCK = 1024
@@ -132,5 +133,5 @@ class FastSingleLayer(LinearOperator):
             far = potentials(self._points, charges, precision=self.precision)
         else:
             far = potentials(self._points, charges, self.panels.centroids, precision=self.precision)
-        return far + self.near @ x
+        return far + csr_times(self.near, x)
 

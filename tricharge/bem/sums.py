@@ -212,3 +212,26 @@ def cluster_far_matrix(centre, area, near_indptr, near_indices, count, vector, m
                 acc += inv * (count[i] + (vector[i, 0] * d0 + vector[i, 1] * d1 + vector[i, 2] * d2) / r2)
             out[i, j] = acc
     return out
+
+
+@compiled(parallel=True, fastmath=True)
+def _csr_times(indptr, indices, data, x):
+    m, k = indptr.shape[0] - 1, x.shape[1]
+    out = np.zeros((m, k))
+    for i in prange(m):
+        for p in range(indptr[i], indptr[i + 1]):
+            j, v = indices[p], data[p]
+            for c in range(k):
+                out[i, c] += v * x[j, c]
+    return out
+
+
+def csr_times(matrix, x: np.ndarray) -> np.ndarray:
+    """``matrix @ x`` for a scipy CSR matrix (M, N) and x (N,) or (N, K), rows over all
+    cores (scipy's own product runs on one)."""
+    x = np.asarray(x, dtype=np.float64)
+    if matrix.format != "csr":
+        return matrix @ x
+    columns = np.ascontiguousarray(x.reshape(len(x), -1))
+    out = _csr_times(matrix.indptr, matrix.indices, matrix.data, columns)
+    return out[:, 0] if x.ndim == 1 else out

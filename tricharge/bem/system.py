@@ -32,6 +32,7 @@ from .nearfield import (DENSE_POLICY, GENERAL_FAST_POLICY, NearFieldPolicy, near
 from .operators import StoredOperator, assemble_single_layer
 from .panels import Panels
 from .problem import Problem
+from .sums import csr_times
 
 #: The direct far sum is timed on every SAMPLE_EVERY-th target to predict its cost.
 SAMPLE_EVERY = 40
@@ -251,11 +252,11 @@ class FastSystem(LinearOperator):
         need_grad = len(self.rows_i) > 0
         phi_c, grad_i = self._far_sums(points, charges, need_grad)
         out = np.zeros_like(x)
-        out[self.rows_c] = phi_c + self.near_c @ s
+        out[self.rows_c] = phi_c + csr_times(self.near_c, s)
         if need_grad:
             normal_field = -np.einsum("pkd,pd->pk", grad_i, panels.normals[self.rows_i])
             lam = problem.contrast[self.rows_i, None]
-            out[self.rows_i] = 2.0 * np.pi * s[self.rows_i] + lam * (normal_field + self.near_i @ s)
+            out[self.rows_i] = 2.0 * np.pi * s[self.rows_i] + lam * (normal_field + csr_times(self.near_i, s))
         for f, k in enumerate(self.floating):
             members = problem.panel_conductor == k
             out[:n][members] -= x[n + f]
