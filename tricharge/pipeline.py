@@ -237,7 +237,7 @@ def solve_field(model: Model, voltages: dict[str, float] | None = None, *, metho
     surface = surface_field(problem, excitation.sigma)
     groups = part_index(model)
     parts = model.conductor_names + tuple(i.name for i in model.interfaces)
-    spots = hot_spots(problem.panels, surface.magnitude, groups, top=top)
+    spots = hot_spots(problem.panels, surface.magnitude, groups, top=top, sheet=problem.sheet)
     margins = _margins(model, surface, withstand or {})
     gap, utilisation = _utilisation(model, volts, surface)
     return FieldResult(model.conductor_names, excitation.potentials, excitation.free_charge, surface, parts, groups,

@@ -112,3 +112,22 @@ def test_a_floating_sheet_between_two_media_is_refused():
     floating = replace(model, conductors=(Conductor("disk", ("disk",), floating=True),), check=False)
     with pytest.raises(OptionError, match="floating sheet in an interface between two media"):
         solve(floating)
+
+
+def test_the_rim_of_a_sheet_in_an_interface_is_marked_as_a_knife_edge():
+    """A sheet's edge is a knife edge, where the field is singular, even where it meets
+    the interface it lies in with coplanar neighbours: its hot spots there say so, and
+    its middle does not."""
+    from tricharge.bem.fields import SHARP_ANGLE, edge_sharpness
+
+    result = solve_field(disk_in_block(2.0), {"disk": 1.0})
+    panels, sheet = result.problem.panels, result.problem.sheet
+    sharpness = edge_sharpness(panels, sheet)
+    corner_radius = np.linalg.norm(panels.corners[:, :, :2], axis=2)
+    on_rim = sheet & (np.isclose(corner_radius, 1.0).sum(axis=1) == 2)   # an edge on the rim
+    assert on_rim.any() and np.all(sharpness[on_rim] == 180.0)
+    assert np.all(sharpness[sheet & (corner_radius.max(axis=1) < 0.8)] < SHARP_ANGLE)
+    assert np.all(edge_sharpness(panels)[on_rim] < SHARP_ANGLE)   # without the sheets: coplanar, not sharp
+    top = [s for s in result.spots if s.group == 0 and s.rank == 1][0]
+    assert top.sharp and np.hypot(*top.location[:2]) > 0.8
+

@@ -232,15 +232,23 @@ def gauss_check(panels: Panels, sigma, center, radius: float, *, eps_r: float = 
 SHARP_ANGLE = 30.0
 
 
-def edge_sharpness(panels: Panels) -> np.ndarray:
+def edge_sharpness(panels: Panels, sheet=None) -> np.ndarray:
     """(N,) largest angle (degrees) between a panel's normal and its neighbours' across
-    its edges; 180 on a free edge of an open sheet (a knife edge)."""
+    its edges; 180 on a free edge of an open sheet (a knife edge), and, given ``sheet``
+    ((N,) bool, the conductor sheet panels), on a sheet's rim where it meets the
+    interface it lies in (the neighbours there are coplanar, but the conductor ends)."""
     from ..mesh import edge_ids, neighbour_pairs
 
     t = panels.triangles
-    _, side = edge_ids(t)
+    edges, side = edge_ids(t)
     sharp = np.zeros(len(t))
     sharp[(np.bincount(side.ravel())[side] == 1).any(axis=1)] = 180.0  # a free edge
+    if sheet is not None and np.any(sheet):
+        sheet = np.asarray(sheet, dtype=bool)
+        on_sheets = np.bincount(side[sheet].ravel(), minlength=len(edges))
+        rim = np.zeros(len(t), dtype=bool)
+        rim[sheet] = (on_sheets[side[sheet]] == 1).any(axis=1)
+        sharp[rim] = 180.0
     a, b = neighbour_pairs(t)
     cosine = np.clip(np.einsum("pd,pd->p", panels.normals[a], panels.normals[b]), -1.0, 1.0)
     angle = np.degrees(np.arccos(cosine))
@@ -269,17 +277,19 @@ class HotSpot:
     sharp: bool
 
 
-def hot_spots(panels: Panels, magnitude, groups, *, top: int = 5, separation: float = 3.0) -> list[HotSpot]:
+def hot_spots(panels: Panels, magnitude, groups, *, top: int = 5, separation: float = 3.0,
+              sheet=None) -> list[HotSpot]:
     """The ``top`` highest field values on each group of panels, at least
     ``separation`` panel sizes apart so one peak is not listed many times.
 
     Parameters
     ----------
     panels : the panels; magnitude : (N,) |E| V/m; groups : (N,) part index, -1 to skip
+    sheet : (N,) bool, the conductor sheet panels (their rims are knife edges), or None
     """
     magnitude = np.asarray(magnitude, dtype=np.float64)
     groups = np.asarray(groups)
-    sharpness = edge_sharpness(panels)
+    sharpness = edge_sharpness(panels, sheet)
     spots = []
     for g in np.unique(groups[groups >= 0]):
         chosen = []
