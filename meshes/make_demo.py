@@ -8,8 +8,10 @@ Three scenarios, all our own and invented for the demos (no real product or comp
   Conductors are Gmsh physical groups named pin1, pin2, pin3 and shield.
 * ``demo_package.msh`` + ``demo_package.toml`` -- an invented four-lead sensor package:
   a 3 mm x 3 mm x 1 mm mold body on a 0.1 mm board substrate over its ground plane, holding a
-  die on its paddle, four bond pads, four gold-style bond wires and four leads. Each
-  signal net is lead + wire + pad; the designer wants the net-to-net coupling.
+  die on its paddle, four bond pads, four gold-style bond wires and four leads, and four
+  board traces: zero-thickness copper sheets in the board's top face beside the mold.
+  Each signal net is lead + wire + pad + trace; the designer wants the net-to-net
+  coupling.
 * ``demo_hv.msh`` + ``demo_hv.toml`` -- an invented high-voltage test cell in air: a
   round-ended rod at 50 kV with a grading ring near its top, 30 mm above a grounded
   rounded disk. The engineer wants the field at the rod tip.
@@ -68,6 +70,10 @@ LEAD_Z, PAD_Z = 0.375, 0.68          # box centres
 WIRE_RADIUS, WIRE_PANEL, LOOP_HEIGHT = 0.02, 0.02, 0.25
 WIRE_GAP = 0.02                      # clearance between a wire end and its pad or lead
 CORNERS = [(-1, 1), (-1, -1), (1, -1), (1, 1)]  # net k sits at corner k, counter-clockwise
+# Board traces (sheets in the board's top face, on its 0.2 mm grid): 0.2 mm wide and 2 mm
+# long, 0.2 mm from the mold's wall; traces 1 and 2 (and 3 and 4) meet end to end across a
+# 0.2 mm gap at y = 0, where the field between nets at different voltages peaks.
+TRACE_X, TRACE_Y = (1.7, 1.9), (0.1, 2.1)
 
 
 def _top(box_args, z_center):
@@ -95,10 +101,20 @@ def package_parts():
     return leads + wires + pads + [("paddle", *shapes.box(**PADDLE))] + _mold_and_board()
 
 
+def _on_trace(c, sx, sy):
+    """True where the centroids ``c`` lie on the trace of the net at corner (sx, sy)."""
+    x, y = sx * c[:, 0], sy * c[:, 1]
+    return (x > TRACE_X[0]) & (x < TRACE_X[1]) & (y > TRACE_Y[0]) & (y < TRACE_Y[1])
+
+
 def _faces_without(vertices, triangles, keep):
     """(vertices, triangles) keeping the triangles whose centroids satisfy ``keep(c)``."""
     centroids = vertices[triangles].mean(axis=1)
     return vertices, triangles[keep(centroids)]
+
+
+def _on_a_trace(c):
+    return np.any([_on_trace(c, sx, sy) for sx, sy in CORNERS], axis=0)
 
 
 def _mold_and_board():
@@ -113,9 +129,11 @@ def _mold_and_board():
     top_v, top_t = shapes.plate(BOARD["size"][:2], BOARD["divisions"][:2], center=(0.0, 0.0, board_top))
     under = lambda c: (np.abs(c[:, 0]) < half_x) & (np.abs(c[:, 1]) < half_y)  # noqa: E731
     base = _faces_without(top_v, top_t, under)
-    board_top_faces = _faces_without(top_v, top_t, lambda c: ~under(c))
+    board_top_faces = _faces_without(top_v, top_t, lambda c: ~under(c) & ~_on_a_trace(c))
+    traces = [(f"trace{k}", *_faces_without(top_v, top_t, lambda c, s=corner: _on_trace(c, *s)))
+              for k, corner in enumerate(CORNERS, start=1)]
     edge = _faces_without(*shapes.box(**BOARD), lambda c: (c[:, 2] > 1e-9) & (c[:, 2] < board_top - 1e-9))
-    return [("mold", *mold), ("mold_base", *base), ("board_top", *board_top_faces), ("board_edge", *edge)]
+    return [("mold", *mold), ("mold_base", *base), ("board_top", *board_top_faces), ("board_edge", *edge)] + traces
 
 
 PACKAGE_TOML = """\
@@ -134,24 +152,25 @@ mold = 3.9         # epoxy mold compound (typical value, invented for the demo)
 board = 4.4        # glass-epoxy board substrate (typical value, invented for the demo)
 
 # Lead, wire and pad are separate closed bodies with small gaps between them in the
-# mesh; listing them together makes them one conductor.
+# mesh, and the trace is a zero-thickness sheet on the board (its solder joint to the
+# lead is not modelled); listing them together makes them one conductor.
 [conductors.net1]
-surfaces = ["lead1", "wire1", "pad1"]
-medium = "mold"
+surfaces = ["lead1", "wire1", "pad1", "trace1"]
+medium = "mold"         # the trace lies in the board's top face: board below, air above
 volts = "3.3 V"
 
 [conductors.net2]
-surfaces = ["lead2", "wire2", "pad2"]
+surfaces = ["lead2", "wire2", "pad2", "trace2"]
 medium = "mold"
 volts = "0 V"
 
 [conductors.net3]
-surfaces = ["lead3", "wire3", "pad3"]
+surfaces = ["lead3", "wire3", "pad3", "trace3"]
 medium = "mold"
 volts = "1.65 V"
 
 [conductors.net4]
-surfaces = ["lead4", "wire4", "pad4"]
+surfaces = ["lead4", "wire4", "pad4", "trace4"]
 medium = "mold"
 volts = "3.3 V"
 

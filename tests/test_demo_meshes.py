@@ -63,17 +63,18 @@ def test_committed_model_file_matches_and_names_existing_groups(stem, text, gene
 
 
 INTERFACE_PARTS = {"mold", "mold_base", "board_top", "board_edge"}
+SHEET_PARTS = {"trace1", "trace2", "trace3", "trace4"}   # zero-thickness board traces
 
 
-def _conductor_parts(parts):
-    return [p for p in parts if p[0] not in INTERFACE_PARTS]
+def _conductor_parts(parts, sheets=True):
+    return [p for p in parts if p[0] not in INTERFACE_PARTS and (sheets or p[0] not in SHEET_PARTS)]
 
 
 @pytest.mark.parametrize("stem", ["demo_package", "demo_hv"])
 def test_every_conductor_part_is_a_closed_outward_body_under_10k_panels(stem, generated):
     parts = generated[stem]
     assert sum(len(t) for _, _, t in parts) < 10_000
-    for name, v, t in _conductor_parts(parts):
+    for name, v, t in _conductor_parts(parts, sheets=False):
         assert_closed_and_consistent(v, t)
         assert signed_volume(v, t) > 0, name
 
@@ -91,7 +92,7 @@ def test_mold_skin_and_base_close_the_mold_body(generated):
 
 @pytest.mark.parametrize("stem, gap", [("demo_package", 0.005), ("demo_hv", 10.0)])
 def test_no_two_conductor_parts_touch(stem, gap, generated):
-    parts = _conductor_parts(generated[stem])
+    parts = [(name, v[np.unique(t)], t) for name, v, t in _conductor_parts(generated[stem])]  # used vertices
     for k, (name_a, va, _) in enumerate(parts):
         for name_b, vb, _ in parts[k + 1:]:
             closest = cKDTree(vb).query(va)[0].min()
@@ -110,11 +111,32 @@ def test_package_wires_clear_their_lead_and_pad_and_everything_sits_in_the_mold(
         lead = _box_distance(wire, (1.1 * sx, 0.5 * sy, make_demo.LEAD_Z), make_demo.LEAD["size"]).min()
         pad = _box_distance(wire, (0.35 * sx, 0.35 * sy, make_demo.PAD_Z), make_demo.PAD["size"]).min()
         assert 0.02 <= lead < 0.04 and 0.02 <= pad < 0.04, (k, lead, pad)
-    inside = np.vstack([v for name, v in parts.items() if name not in INTERFACE_PARTS])
+    inside = np.vstack([v for name, v in parts.items() if name not in INTERFACE_PARTS | SHEET_PARTS])
     mold = make_demo.MOLD
     assert _box_distance(inside, mold["center"], np.asarray(mold["size"]) - 0.15).max() == 0.0
     assert inside[:, 2].min() > 0.15                                  # conductors clear the board top
     assert min(v[:, 2].min() for v in parts.values()) == 0.0          # the board rests on the plane
+
+
+def test_package_traces_are_sheets_cut_from_the_board_top_beside_the_mold(generated):
+    """Each trace lies in the board's top face, shares its rim with the rest of that face
+    (so it fills a hole in the board|air interface), keeps 0.2 mm from the mold's wall, and
+    traces 1 and 2 face each other end to end across 0.2 mm."""
+    from tricharge.mesh import closed_pieces
+
+    parts = {name: (v, t) for name, v, t in generated["demo_package"]}
+    top_v, top_t = parts["board_top"]
+    board_vertices = {tuple(np.round(p, 9)) for p in top_v[np.unique(top_t)]}
+    for name in sorted(SHEET_PARTS):
+        v, t = parts[name]
+        used = v[np.unique(t)]
+        assert len(t) > 0 and np.all(used[:, 2] == 0.1), name
+        assert not closed_pieces(t)[1].any(), name                         # open: a sheet
+        assert all(tuple(np.round(p, 9)) in board_vertices for p in used), name
+        assert np.abs(used[:, :2]).max(axis=0).min() >= 1.5 + 0.2 - 1e-9, name   # clear of the mold wall
+    gap = parts["trace1"][0][np.unique(parts["trace1"][1]), 1].min() - parts["trace2"][0][
+        np.unique(parts["trace2"][1]), 1].max()
+    assert gap == pytest.approx(0.2)
 
 
 def test_hv_ring_surrounds_the_rod_near_its_top(generated):
