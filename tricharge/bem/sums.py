@@ -145,6 +145,24 @@ def cluster_pair_sums(members, starts, pair_i, pair_j, offsets, centroids, norma
     return out
 
 
+@compiled(fastmath=False)
+def _far_clusters(i, m, near_indptr, near_indices):
+    """(m,) bool: the clusters that are not near cluster i (CSR rows of the near pairs)."""
+    far = np.ones(m, dtype=np.bool_)
+    for p in range(near_indptr[i], near_indptr[i + 1]):
+        far[near_indices[p]] = False
+    return far
+
+
+@compiled(fastmath=False)
+def _from_source(centre, i, j, image, mirror_z):
+    """(sign, x_i - x_j as three numbers, r^2) for centre j (image 0) or its mirror image
+    at ``z -> 2 mirror_z - z`` (image 1, sign -1)."""
+    z = centre[j, 2] if image == 0 else 2.0 * mirror_z - centre[j, 2]
+    d0, d1, d2 = centre[i, 0] - centre[j, 0], centre[i, 1] - centre[j, 1], centre[i, 2] - z
+    return (1.0 if image == 0 else -1.0), d0, d1, d2, d0 * d0 + d1 * d1 + d2 * d2
+
+
 @compiled(parallel=True, fastmath=False)
 def cluster_far_sums(centre, area, near_indptr, near_indices, y, mirror_z, mirrored):
     """Potential (m, K) and field (m, 3, K) at every cluster centre of the point charges
@@ -158,17 +176,12 @@ def cluster_far_sums(centre, area, near_indptr, near_indices, y, mirror_z, mirro
     m, k = centre.shape[0], y.shape[1]
     potential, field = np.zeros((m, k)), np.zeros((m, 3, k))
     for i in prange(m):
-        far = np.ones(m, dtype=np.bool_)
-        for p in range(near_indptr[i], near_indptr[i + 1]):
-            far[near_indices[p]] = False
+        far = _far_clusters(i, m, near_indptr, near_indices)
         for j in range(m):
             if not far[j]:
                 continue
             for image in range(2 if mirrored else 1):
-                sign = 1.0 if image == 0 else -1.0
-                z = centre[j, 2] if image == 0 else 2.0 * mirror_z - centre[j, 2]
-                d0, d1, d2 = centre[i, 0] - centre[j, 0], centre[i, 1] - centre[j, 1], centre[i, 2] - z
-                r2 = d0 * d0 + d1 * d1 + d2 * d2
+                sign, d0, d1, d2, r2 = _from_source(centre, i, j, image, mirror_z)
                 if r2 == 0.0:
                     continue
                 inv = sign * area[j] / math.sqrt(r2)
@@ -194,23 +207,16 @@ def cluster_far_matrix(centre, area, near_indptr, near_indices, count, vector, m
     m = centre.shape[0]
     out = np.zeros((m, m))
     for i in prange(m):
-        far = np.ones(m, dtype=np.bool_)
-        for p in range(near_indptr[i], near_indptr[i + 1]):
-            far[near_indices[p]] = False
+        far = _far_clusters(i, m, near_indptr, near_indices)
         for j in range(m):
             if not far[j]:
                 continue
-            acc = 0.0
             for image in range(2 if mirrored else 1):
-                sign = 1.0 if image == 0 else -1.0
-                z = centre[j, 2] if image == 0 else 2.0 * mirror_z - centre[j, 2]
-                d0, d1, d2 = centre[i, 0] - centre[j, 0], centre[i, 1] - centre[j, 1], centre[i, 2] - z
-                r2 = d0 * d0 + d1 * d1 + d2 * d2
+                sign, d0, d1, d2, r2 = _from_source(centre, i, j, image, mirror_z)
                 if r2 == 0.0:
                     continue
                 inv = sign * area[j] / math.sqrt(r2)
-                acc += inv * (count[i] + (vector[i, 0] * d0 + vector[i, 1] * d1 + vector[i, 2] * d2) / r2)
-            out[i, j] = acc
+                out[i, j] += inv * (count[i] + (vector[i, 0] * d0 + vector[i, 1] * d1 + vector[i, 2] * d2) / r2)
     return out
 
 
